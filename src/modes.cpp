@@ -2,6 +2,7 @@
 
 #include "radmode/constants.hpp"
 #include "radmode/error.hpp"
+#include "radmode/structure.hpp"
 
 #include <algorithm>
 #include <cmath>
@@ -15,55 +16,7 @@ namespace {
 using constants::G;
 using constants::pi;
 
-/// Model coefficients at one radius.
-struct Coefficients {
-  double m = 0, P = 0, rho = 0, gamma1 = 0, nabla_ad = 0;
-};
-
 double lerp(double a, double b, double t) { return a + t * (b - a); }
-/// Log-linear when both ends are positive (P and rho span decades), else linear.
-double loglerp(double a, double b, double t) {
-  if (a > 0 && b > 0) return a * std::pow(b / a, t);
-  return lerp(a, b, t);
-}
-
-/// Interpolates the model at radius x [cm]. Below the innermost point (a model extended to
-/// the centre) P, rho, Gamma1 are held at their innermost values and m = m_0 (x/r_0)^3 (a
-/// uniform-density core); above R the surface values are used. At a repeated radius
-/// (composition discontinuity) the outer row is used.
-Coefficients interpolate(const StellarModel& model, double x) {
-  const auto& r = model.r;
-  const bool has_nabla = !model.nabla_ad.empty();
-  Coefficients c;
-  auto row = [&](std::size_t j) {
-    c.m = model.m[j];
-    c.P = model.P[j];
-    c.rho = model.rho[j];
-    c.gamma1 = model.gamma1[j];
-    c.nabla_ad = has_nabla ? model.nabla_ad[j] : 0.0;
-  };
-  if (x <= r.front()) {
-    row(0);
-    if (r.front() > 0) {
-      const double q = std::max(x, 0.0) / r.front();
-      c.m = model.m.front() * q * q * q;
-    }
-    return c;
-  }
-  if (x >= r.back()) {
-    row(r.size() - 1);
-    return c;
-  }
-  const auto hi = static_cast<std::size_t>(std::upper_bound(r.begin(), r.end(), x) - r.begin());
-  const std::size_t lo = hi - 1; // r[lo] <= x < r[hi], r[lo] < r[hi]
-  const double t = (x - r[lo]) / (r[hi] - r[lo]);
-  c.m = lerp(model.m[lo], model.m[hi], t);
-  c.P = loglerp(model.P[lo], model.P[hi], t);
-  c.rho = loglerp(model.rho[lo], model.rho[hi], t);
-  c.gamma1 = lerp(model.gamma1[lo], model.gamma1[hi], t);
-  c.nabla_ad = has_nabla ? lerp(model.nabla_ad[lo], model.nabla_ad[hi], t) : 0.0;
-  return c;
-}
 
 /// Node values of xi' from the element slopes (see modes.hpp).
 std::vector<double> node_derivative(const std::vector<double>& r, const std::vector<double>& xi) {
@@ -91,9 +44,10 @@ struct EnergyIntegrals {
   double potential = 0; ///< int [Gamma1 P r^2 (3xi + r xi')^2 - 4 G m rho r xi^2] dr
 };
 
-EnergyIntegrals integrate_energy(const StellarModel& model, const std::vector<double>& r,
+EnergyIntegrals integrate_energy(const Structure& structure, const std::vector<double>& r,
                                  const std::vector<double>& xi) {
   EnergyIntegrals out;
+  std::size_t hint = 0;
   const double g = 0.5 / std::sqrt(3.0); // Gauss-Legendre points at mid +- g h
   for (std::size_t e = 0; e + 1 < r.size(); ++e) {
     const double h = r[e + 1] - r[e];
@@ -102,7 +56,7 @@ EnergyIntegrals integrate_energy(const StellarModel& model, const std::vector<do
     for (const double offset : {0.5 - g, 0.5 + g}) {
       const double x = r[e] + offset * h;
       const double xv = lerp(xi[e], xi[e + 1], offset);
-      const Coefficients c = interpolate(model, x);
+      const StructurePoint c = structure.at_radius(x, &hint);
       const double y = 3.0 * xv + x * s;
       out.kinetic += 0.5 * h * c.rho * x * x * x * x * xv * xv;
       out.potential += 0.5 * h * (c.gamma1 * c.P * x * x * y * y - 4.0 * G * c.m * c.rho * x * xv * xv);
@@ -146,6 +100,7 @@ ModeReport make_mode_report(const StellarModel& model, const ModeSet& set,
   const bool regular_surface = options.surface == SurfaceCondition::regular;
   const double Ps = regular_surface ? model.surface_pressure() : 0.0;
   const std::vector<double>& r = set.node_r;
+  const Structure structure(model, options.inner);
   const std::size_t n = r.size();
 
   for (const ModeSolution& sol : set.modes) {
@@ -198,7 +153,7 @@ ModeReport make_mode_report(const StellarModel& model, const ModeSet& set,
     prof.order = q.order;
     prof.label = q.label;
     if (n >= 2) {
-      const EnergyIntegrals I = integrate_energy(model, r, xi);
+      const EnergyIntegrals I = integrate_energy(structure, r, xi);
       const double xiR = xi.back();
       const double mass_form = I.kinetic + std::pow(R, 6) * Ps / (G * M) * xiR * xiR;
       const double stiffness = I.potential - 4.0 * R * R * R * Ps * xiR * xiR;
@@ -206,10 +161,11 @@ ModeReport make_mode_report(const StellarModel& model, const ModeSet& set,
       if (mass_form > 0) q.omega2_rayleigh_s2 = stiffness / mass_form;
 
       const std::vector<double> dxi = node_derivative(r, xi);
-      const bool has_nabla = !model.nabla_ad.empty();
+      const bool has_nabla = structure.has_nabla_ad();
       const double to_dimless = mass_form > 0 ? R / (unit_omega2 * mass_form) : 0.0;
+      std::size_t hint = 0;
       for (std::size_t i = 0; i < n; ++i) {
-        const Coefficients c = interpolate(model, r[i]);
+        const StructurePoint c = structure.at_radius(r[i], &hint);
         const double y = 3.0 * xi[i] + r[i] * dxi[i]; // = -delta rho / rho
         prof.r_over_R.push_back(r[i] / R);
         prof.m_over_M.push_back(c.m / M);

@@ -21,8 +21,10 @@
 // ends the slope of the end element is used (at r = 0 the term r xi' vanishes anyway).
 // Integrals (M[xi], inertia, int w dr) are instead taken element by element with the exact
 // element slope and two-point Gauss-Legendre quadrature, the model coefficients being
-// interpolated at the Gauss points (P and rho log-linearly in r, m and Gamma1 linearly).
-// Both are second-order accurate in the mesh spacing.
+// interpolated at the Gauss points by Structure (structure.hpp: P and rho log-linearly in r,
+// m and Gamma1 linearly, centre extension and discontinuities as there). Node values of the
+// coefficients at a discontinuity are those of the outer side. Both are second-order
+// accurate in the mesh spacing.
 #include "radmode/eigensolve.hpp"
 #include "radmode/json.hpp"
 #include "radmode/model.hpp"
@@ -120,8 +122,9 @@ struct ModeReport {
 };
 
 /// Derives the report. `options` must be those the ModeSet was solved with (the surface
-/// condition decides the surface terms of K and M). Throws Error(numerical) only when the
-/// ModeSet is inconsistent (eigenfunction length differs from node_r).
+/// condition decides the surface terms of K and M, the inner condition the centre extension).
+/// Throws InputError for an invalid model (validate_model), Error(numerical) when the ModeSet
+/// is inconsistent (eigenfunction length differs from node_r, a node outside the model).
 ModeReport make_mode_report(const StellarModel& model, const ModeSet& set,
                             const SolveOptions& options);
 

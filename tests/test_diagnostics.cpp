@@ -4,6 +4,7 @@
 
 #include "radmode/constants.hpp"
 #include "radmode/error.hpp"
+#include "analytic_models.hpp"
 #include "diag_models.hpp"
 
 #include <doctest/doctest.h>
@@ -13,8 +14,15 @@
 
 using namespace radmode;
 using radmode::test::polytrope_model;
-using radmode::test::uniform_sphere_model;
 namespace c = radmode::constants;
+
+namespace {
+StellarModel uniform_sphere_model(std::size_t points, double mass_g, double radius_cm,
+                                  double gamma1) {
+  return radmode::test::uniform_sphere(radmode::test::uniform_mesh(points - 1), gamma1, mass_g,
+                                       radius_cm);
+}
+} // namespace
 
 TEST_CASE("time scales of the Sun-scaled n = 3 polytrope") {
   const StellarModel model = polytrope_model(3.0, 801, c::M_sun, c::R_sun, 5.0 / 3.0);

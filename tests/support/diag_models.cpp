@@ -23,25 +23,6 @@ StellarModel empty_model(std::size_t points, const char* what) {
 }
 } // namespace
 
-StellarModel uniform_sphere_model(std::size_t points, double mass_g, double radius_cm,
-                                  double gamma1) {
-  StellarModel m = empty_model(points, "test uniform sphere");
-  const double rho = 3.0 * mass_g / (4.0 * pi * std::pow(radius_cm, 3));
-  const double pc = 3.0 * G * mass_g * mass_g / (8.0 * pi * std::pow(radius_cm, 4));
-  for (std::size_t i = 0; i < points; ++i) {
-    const double x = static_cast<double>(i) / static_cast<double>(points - 1);
-    m.r[i] = x * radius_cm;
-    m.m[i] = mass_g * x * x * x;
-    m.P[i] = pc * (1.0 - x * x);
-    m.rho[i] = rho;
-    m.gamma1[i] = gamma1;
-  }
-  m.r.back() = radius_cm;
-  m.m.back() = mass_g;
-  m.P.back() = 0.0;
-  return m;
-}
-
 StellarModel polytrope_model(double n, std::size_t points, double mass_g, double radius_cm,
                              double gamma1) {
   if (!(n > 0.0 && n < 5.0)) throw std::invalid_argument("polytrope_model: 0 < n < 5");

@@ -38,8 +38,7 @@ int run_join(const JoinOptions& o) {
                                           : format_track_csv(table));
   if (!o.quiet) std::cerr << format_track_summary(summary);
   if (summary.failed > 0) {
-    if (!o.quiet)
-      std::cerr << "radmode join: " << summary.failed << " of " << summary.models
+    std::cerr << "radmode join: " << summary.failed << " of " << summary.models
                 << " models failed (see the status and message columns)\n";
     return exit_some_failed;
   }
@@ -60,7 +59,7 @@ const bool registered = register_command(
                        "- = standard output")
            ->type_name("FILE");
        sub->add_flag("--json", opts->json, "Write JSON (rows and the along-track summary)");
-       sub->add_flag("-q,--quiet", opts->quiet, "No summary on standard error");
+       sub->add_flag("-q,--quiet", opts->quiet, "No summary on standard error (the count of failed models is still printed)");
        return {sub, [opts] { return run_join(*opts); }};
      }});
 

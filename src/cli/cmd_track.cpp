@@ -7,6 +7,7 @@
 // exit status 130.
 #include "common.hpp"
 #include "registry.hpp"
+#include "track_output.hpp"
 
 #include "radmode/error.hpp"
 #include "radmode/output.hpp"
@@ -198,16 +199,7 @@ int finish(const TrackCliOptions& o, const Outcome& r) {
               << " models; nothing written\n";
     return exit_interrupted;
   }
-  const TrackSummary summary = summarize_track(r.table.rows, r.table.count);
-  write_text_file_atomic(o.output, o.json ? format_track_json(r.table, summary)
-                                          : format_track_csv(r.table));
-  if (!o.quiet) std::cerr << format_track_summary(summary);
-  if (summary.failed > 0) {
-    std::cerr << "radmode track: " << summary.failed << " of " << summary.models
-              << " models failed (see the status and message columns)\n";
-    return exit_some_failed;
-  }
-  return 0;
+  return write_track_result(r.table, o.output, o.json, o.quiet, "track");
 }
 
 #ifdef RADMODE_WITH_MPI

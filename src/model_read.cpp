@@ -149,9 +149,9 @@ LineType classify(std::string_view line) {
   return LineType::blank;
 }
 
+/// Metadata keys: any run of characters other than blanks, `=` and `#`.
 bool is_key_char(char c) {
-  return (c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') ||
-         c == '_' || c == '.' || c == '-';
+  return c != ' ' && c != '\t' && c != '\r' && c != '\v' && c != '\f' && c != '=' && c != '#';
 }
 
 /// `# key = value` -> (key, value); other comments -> nullopt.

@@ -124,6 +124,18 @@ TEST_CASE("native table: values, line numbers, metadata and extra columns") {
   CHECK(model.has_centre());
 }
 
+TEST_CASE("metadata lines: key without blanks, '=' or '#'; other comments ignored") {
+  auto lines = good_lines();
+  lines[0] = "# mass(Msun) = 1.7 ";
+  lines.insert(lines.begin(), {"#x=5", "# Note: a = b", "# ==== banner ====", "  # key2 =  "});
+  lines.push_back("# trailer = after the rows");
+  const auto model = parse_model(join(lines), "meta.txt");
+  using KV = std::pair<std::string, std::string>;
+  const std::vector<KV> expected = {KV{"x", "5"}, KV{"key2", ""}, KV{"mass(Msun)", "1.7"},
+                                    KV{"trailer", "after the rows"}};
+  CHECK(model.metadata == expected);
+}
+
 TEST_CASE("surface-first table gives the same centre-first model") {
   const auto p = make_points();
   const auto a = parse_model(native_table(p), "a.txt");

@@ -2,11 +2,11 @@
 
 #include "radmode/constants.hpp"
 #include "radmode/error.hpp"
+#include "text_format.hpp"
 
 #include <algorithm>
 #include <cmath>
 #include <limits>
-#include <sstream>
 
 namespace radmode {
 
@@ -16,12 +16,7 @@ using constants::G;
 using constants::pi;
 constexpr double four_thirds = 4.0 / 3.0;
 
-std::string num(double x) {
-  std::ostringstream s;
-  s.precision(4);
-  s << x;
-  return s.str();
-}
+std::string num(double x) { return detail::sig(x, 4); }
 
 void require_positive(const char* name, double v) {
   if (!(v > 0.0) || !std::isfinite(v))

@@ -1,0 +1,95 @@
+#pragma once
+// Structure: a StellarModel prepared for the pulsation solvers, with its coefficients
+// interpolable anywhere in 0 <= r <= R (or r_in <= r <= R for an envelope). Shared by the
+// finite-element assembly (discretize.hpp) and the shooting solver.
+//
+// Preparation rules (physics.md §3-4):
+//  - Centre extension. With InnerCondition::centre and a model whose first point has
+//    r_0 > 0, a point is added at r = 0 describing a uniform-density core of the innermost
+//    density: rho_c = rho_0, m_c = 0, Gamma1_c = Gamma1_0, nabla_ad_c = nabla_ad_0 and
+//    P_c = P_0 + (2 pi / 3) G rho_0^2 r_0^2 (hydrostatic equilibrium of that core).
+//    extended_centre() reports whether this happened. With InnerCondition::rigid the model is
+//    kept as it is (the innermost point is the inner boundary).
+//  - Repeated radii (a composition discontinuity: two rows with the same r) give one node;
+//    each table interval uses the values of its own side: the interval ending at r_d uses
+//    the first row with r_d, the interval starting at r_d uses the second.
+//  - Between the two rows of an interval (local coordinate t in [0, 1], r linear in t):
+//    P and rho are each linear in log when both ends are > 0, otherwise linear (e.g. a zero
+//    surface pressure); m, Gamma1 and nabla_ad are linear.
+//
+// Units: cgs throughout (r cm, m g, P dyn cm^-2, rho g cm^-3; Gamma1, nabla_ad dimensionless).
+#include "radmode/eigensolve.hpp"
+#include "radmode/model.hpp"
+
+#include <cstddef>
+#include <vector>
+
+namespace radmode {
+
+/// Equilibrium quantities at one radius.
+struct StructurePoint {
+  double r = 0;        ///< radius [cm]
+  double m = 0;        ///< mass inside r [g]
+  double P = 0;        ///< pressure [dyn cm^-2]
+  double rho = 0;      ///< density [g cm^-3]
+  double gamma1 = 0;   ///< first adiabatic exponent
+  double nabla_ad = 0; ///< adiabatic gradient (0 when the model has none: see has_nabla_ad())
+};
+
+class Structure {
+public:
+  /// Prepares `model` (validated first with validate_model: throws InputError when invalid).
+  explicit Structure(const StellarModel& model, InnerCondition inner = InnerCondition::centre);
+
+  /// Number of table intervals of positive length (= node_r().size() - 1).
+  std::size_t interval_count() const noexcept { return m_iv.size(); }
+  /// Unique radii, innermost first [cm]; interval i spans node_r()[i] .. node_r()[i+1].
+  const std::vector<double>& node_r() const noexcept { return m_node_r; }
+  /// True where the node is a discontinuity (repeated radius): the two intervals meeting there
+  /// use different rows. Same size as node_r().
+  const std::vector<bool>& discontinuity() const noexcept { return m_discontinuity; }
+
+  /// Quantities inside interval i at local coordinate t in [0, 1] (r = r_i + t (r_{i+1} - r_i)).
+  /// t = 0 and t = 1 reproduce that interval's own table rows exactly.
+  StructurePoint at(std::size_t interval, double t) const;
+
+  /// Interval containing radius r: r_i <= r < r_{i+1}; the last interval also contains R.
+  /// A radius at a discontinuity belongs to the OUTER interval. `hint` (optional, in/out) is a
+  /// previously returned index: neighbours of it are tried first, so marching in r is O(1).
+  /// Throws Error(numerical) when r is outside [r_inner, R] (beyond a 1e-12 relative slack).
+  std::size_t interval_of(double r, std::size_t* hint = nullptr) const;
+
+  /// Quantities at radius r (interval_of, then at()). At a discontinuity: the outer side.
+  StructurePoint at_radius(double r, std::size_t* hint = nullptr) const;
+
+  double mass() const noexcept { return m_mass; }                  ///< M [g]
+  double radius() const noexcept { return m_node_r.back(); }       ///< R [cm]
+  double inner_radius() const noexcept { return m_node_r.front(); }///< 0 unless an envelope [cm]
+  double surface_pressure() const noexcept { return m_surface_P; } ///< P_s [dyn cm^-2]
+  bool extended_centre() const noexcept { return m_extended; }
+  bool has_nabla_ad() const noexcept { return m_has_nabla_ad; }
+  InnerCondition inner() const noexcept { return m_inner; }
+
+  /// The prepared table (with the added centre point when extended_centre()).
+  const StellarModel& table() const noexcept { return m_table; }
+  /// Table row at the left / right end of interval i.
+  std::size_t left_row(std::size_t i) const { return m_iv[i].row; }
+  std::size_t right_row(std::size_t i) const { return m_iv[i].row + 1; }
+
+private:
+  struct Interval {
+    std::size_t row; ///< table row at the left end (right end is row + 1)
+    double r0, r1, m0, m1, g0, g1, na0, na1;
+    double P0, P1, lnP0, lnP1, rho0, rho1, lnrho0, lnrho1;
+    bool log_P, log_rho;
+  };
+  StellarModel m_table;
+  std::vector<Interval> m_iv;
+  std::vector<double> m_node_r;
+  std::vector<bool> m_discontinuity;
+  double m_mass = 0, m_surface_P = 0;
+  bool m_extended = false, m_has_nabla_ad = false;
+  InnerCondition m_inner = InnerCondition::centre;
+};
+
+} // namespace radmode

@@ -1,0 +1,124 @@
+// Prepared, interpolable equilibrium model (include/radmode/structure.hpp).
+#include "radmode/structure.hpp"
+
+#include "analytic_models.hpp"
+#include "radmode/constants.hpp"
+#include "radmode/error.hpp"
+
+#include <doctest/doctest.h>
+
+#include <cmath>
+
+using namespace radmode;
+
+TEST_CASE("centre extension adds r = 0 with the uniform-core central pressure") {
+  // Uniform-density sphere, P = (2 pi/3) G rho^2 R^2 (1 - x^2) (physics.md §6): cutting it at
+  // x0 and re-extending with a uniform core of the innermost density must give back its
+  // analytic central pressure (the extension rule is exact for this model).
+  const auto model = test::uniform_sphere(test::uniform_mesh(50, 0.1), 5.0 / 3.0);
+  Structure s(model, InnerCondition::centre);
+  CHECK(s.extended_centre());
+  CHECK(s.node_r().front() == 0.0);
+  CHECK(s.node_r().size() == model.size() + 1);
+  const double R = model.radius(), rho = model.rho[0];
+  const double Pc = (2.0 * constants::pi / 3.0) * constants::G * rho * rho * R * R;
+  const auto c = s.at_radius(0.0);
+  CHECK(c.P == doctest::Approx(Pc).epsilon(1e-14));
+  CHECK(c.m == 0.0);
+  CHECK(c.rho == rho);
+  CHECK(c.gamma1 == 5.0 / 3.0);
+  CHECK(s.table().size() == model.size() + 1);
+  CHECK(s.mass() == model.mass());
+  CHECK(s.radius() == R);
+}
+
+TEST_CASE("rigid inner boundary keeps an envelope as it is") {
+  const auto model = test::uniform_sphere(test::uniform_mesh(50, 0.3), 5.0 / 3.0);
+  Structure s(model, InnerCondition::rigid);
+  CHECK_FALSE(s.extended_centre());
+  CHECK(s.inner_radius() == model.r.front());
+  CHECK(s.interval_count() == 50);
+  CHECK_THROWS_AS(s.at_radius(0.5 * model.r.front()), Error);
+}
+
+TEST_CASE("interpolation: log-linear P and rho, linear m and Gamma1, linear P to zero") {
+  StellarModel m;
+  for (int i = 0; i < 10; ++i) {
+    const double x = i / 9.0;
+    m.r.push_back(x);
+    m.m.push_back(x * x * x + 1e-3 * i);
+    m.P.push_back(i == 9 ? 0.0 : std::pow(10.0, -i));
+    m.rho.push_back(std::pow(2.0, -i));
+    m.gamma1.push_back(1.4 + 0.01 * i);
+    m.nabla_ad.push_back(0.4 - 0.001 * i * i);
+  }
+  Structure s(m);
+  CHECK_FALSE(s.extended_centre());
+  CHECK(s.has_nabla_ad());
+  const auto p = s.at(3, 0.5);
+  CHECK(p.r == doctest::Approx(3.5 / 9.0));
+  CHECK(p.P == doctest::Approx(std::sqrt(m.P[3] * m.P[4])).epsilon(1e-13));
+  CHECK(p.rho == doctest::Approx(std::sqrt(m.rho[3] * m.rho[4])).epsilon(1e-13));
+  CHECK(p.m == doctest::Approx(0.5 * (m.m[3] + m.m[4])));
+  CHECK(p.gamma1 == doctest::Approx(0.5 * (m.gamma1[3] + m.gamma1[4])));
+  CHECK(p.nabla_ad == doctest::Approx(0.5 * (m.nabla_ad[3] + m.nabla_ad[4])));
+  // Zero surface pressure: linear in the last interval.
+  const auto q = s.at(8, 0.25);
+  CHECK(q.P == doctest::Approx(0.75 * m.P[8]));
+  // Table rows are reproduced exactly at the interval ends.
+  for (std::size_t i = 0; i < s.interval_count(); ++i) {
+    CHECK(s.at(i, 0.0).P == m.P[i]);
+    CHECK(s.at(i, 1.0).rho == m.rho[i + 1]);
+  }
+  CHECK(s.at_radius(1.0).P == 0.0);
+}
+
+TEST_CASE("repeated radius: one node, each side uses its own row, the outer side at r_d") {
+  StellarModel m;
+  const double xs[] = {0, 0.1, 0.2, 0.3, 0.4, 0.5, 0.5, 0.6, 0.7, 0.8, 0.9, 1.0};
+  int i = 0;
+  for (const double x : xs) {
+    const bool outer = x > 0.5 || (x == 0.5 && i == 6);
+    m.r.push_back(x);
+    m.m.push_back(x * x * x);
+    m.P.push_back(1.0 - x * x);
+    m.rho.push_back(outer ? 1.0 : 3.0);
+    m.gamma1.push_back(outer ? 5.0 / 3.0 : 1.4);
+    ++i;
+  }
+  Structure s(m);
+  CHECK(s.node_r().size() == 11);
+  CHECK(s.interval_count() == 10);
+  CHECK(s.discontinuity()[5]);
+  CHECK_FALSE(s.discontinuity()[4]);
+  CHECK(s.at(4, 1.0).rho == 3.0);    // interval ending at r_d: inner row
+  CHECK(s.at(5, 0.0).rho == 1.0);    // interval starting at r_d: outer row
+  CHECK(s.at(4, 0.5).gamma1 == 1.4); // no mixing across the discontinuity
+  CHECK(s.at_radius(0.5).rho == 1.0);
+  CHECK(s.at_radius(0.4999).rho == doctest::Approx(3.0));
+  CHECK(s.left_row(5) == 6);
+}
+
+TEST_CASE("interval_of: binary search and hints agree, marching outward and inward") {
+  const auto model = test::uniform_sphere(test::uniform_mesh(200), 5.0 / 3.0);
+  Structure s(model);
+  std::size_t hint = 0;
+  for (int k = 0; k <= 1000; ++k) {
+    const double r = model.radius() * k / 1000.0;
+    const std::size_t a = s.interval_of(r);
+    const std::size_t b = s.interval_of(r, &hint);
+    CHECK(a == b);
+    CHECK(s.node_r()[a] <= r);
+    CHECK((r < s.node_r()[a + 1] || a + 1 == s.interval_count()));
+  }
+  hint = 3; // a wrong hint far away still gives the right interval
+  CHECK(s.interval_of(0.75 * model.radius(), &hint) == 150);
+  CHECK(hint == 150);
+  CHECK_THROWS_AS(s.interval_of(1.01 * model.radius()), Error);
+}
+
+TEST_CASE("an invalid model is rejected by the preparation") {
+  auto model = test::uniform_sphere(test::uniform_mesh(20), 5.0 / 3.0);
+  model.rho[4] = -1.0;
+  CHECK_THROWS_AS(Structure{model}, InputError);
+}

@@ -1,6 +1,8 @@
 #include "radmode/shooting.hpp"
 
+#include "radmode/constants.hpp"
 #include "radmode/error.hpp"
+#include "radmode/structure.hpp"
 
 #include <boost/numeric/odeint.hpp>
 
@@ -8,6 +10,7 @@
 #include <array>
 #include <cmath>
 #include <iterator>
+#include <memory>
 #include <sstream>
 
 namespace radmode {
@@ -23,16 +26,16 @@ std::string num(double x) {
   return s.str();
 }
 
-/// The first-order system in t = ln x on one segment of the structure.
+/// The first-order system in t = ln x on one piece of the structure.
 struct Lawe {
   const ShootingProblem* problem;
   double sigma2;
-  std::size_t segment;
+  std::size_t piece;
   void operator()(const State& y, State& dydt, double t) const {
     const double x = std::exp(t);
-    const LaweCoefficients c = problem->coefficients(x, segment);
+    const LaweCoefficients c = problem->coefficients(x, piece);
     dydt[0] = -3.0 * y[0] - y[1] / c.gamma1;
-    dydt[1] = c.V * (y[1] + (4.0 + sigma2 * c.x3_over_q) * y[0]);
+    dydt[1] = c.Vp * y[1] + c.V * (4.0 + sigma2 * c.x3_over_q) * y[0];
   }
 };
 
@@ -59,37 +62,49 @@ struct Piece {
 
 constexpr long max_steps_per_piece = 200000;
 
-/// Integrates y from x_from to x_to (either direction), restarting at every interface.
+/// Integrates y from x_from to x_to (either direction), restarting at every break.
 void integrate(const ShootingProblem& problem, double sigma2, double tol, double x_from,
                double x_to, Piece& piece) {
   namespace odeint = boost::numeric::odeint;
   const double dir = x_to > x_from ? 1.0 : -1.0;
-  std::vector<double> stops{x_from};
   const double lo = std::min(x_from, x_to), hi = std::max(x_from, x_to);
-  std::vector<double> inside;
-  for (double xi : problem.interfaces)
-    if (xi > lo && xi < hi) inside.push_back(xi);
-  if (dir < 0) std::reverse(inside.begin(), inside.end());
-  stops.insert(stops.end(), inside.begin(), inside.end());
+  const auto& breaks = problem.breaks;
+  // Break indices strictly inside (lo, hi), in the order they are crossed.
+  const auto first = static_cast<std::size_t>(
+      std::upper_bound(breaks.begin(), breaks.end(), lo) - breaks.begin());
+  const auto last = static_cast<std::size_t>(
+      std::lower_bound(breaks.begin(), breaks.end(), hi) - breaks.begin());
+  std::vector<std::size_t> crossed;
+  for (std::size_t j = first; j < last; ++j) crossed.push_back(j);
+  if (dir < 0) std::reverse(crossed.begin(), crossed.end());
+  std::vector<double> stops{x_from};
+  for (std::size_t j : crossed) stops.push_back(breaks[j]);
   stops.push_back(x_to);
-
+  double dt_carry = 1e-3;
   piece.nodes.see(piece.y[0]);
   for (std::size_t k = 0; k + 1 < stops.size(); ++k) {
+    if (k > 0) {
+      // Crossing break j: delta P continuous, so p changes by the pressure ratio.
+      const std::size_t j = crossed[k - 1];
+      if (j < problem.pressure_jump.size())
+        piece.y[1] = dir > 0 ? piece.y[1] * problem.pressure_jump[j]
+                             : piece.y[1] / problem.pressure_jump[j];
+    }
     const double a = stops[k], b = stops[k + 1];
     const double left = std::min(a, b);
-    const auto segment = static_cast<std::size_t>(
-        std::distance(problem.interfaces.begin(),
-                      std::upper_bound(problem.interfaces.begin(), problem.interfaces.end(), left)));
-    Lawe system{&problem, sigma2, segment};
+    const auto index = static_cast<std::size_t>(
+        std::upper_bound(breaks.begin(), breaks.end(), left) - breaks.begin());
+    Lawe system{&problem, sigma2, index};
     auto stepper = odeint::make_controlled(tol, tol, odeint::runge_kutta_dopri5<State>());
     double t = std::log(a);
     const double t_end = std::log(b);
-    double dt = dir * std::min(1e-3, std::abs(t_end - t));
-    long steps = 0, fails = 0;
+    double dt = dir * std::min(dt_carry, std::abs(t_end - t));
     const double t_eps = 1e-13 * std::max(1.0, std::abs(t_end));
+    long steps = 0, fails = 0;
     while (dir * (t_end - t) > t_eps) {
       // Never step past the stop; absorb a sliver left before it into this step.
       if (dir * (t + dt - t_end) > -t_eps) dt = t_end - t;
+      else dt_carry = std::abs(dt);
       const double t_before = t;
       const auto result = stepper.try_step(system, piece.y, t, dt);
       if (result == odeint::success) {
@@ -110,7 +125,8 @@ void integrate(const ShootingProblem& problem, double sigma2, double tol, double
       } else {
         ++fails;
       }
-      if (steps + fails > max_steps_per_piece || std::abs(dt) < 1e-15 * std::max(1.0, std::abs(t))) {
+      if (steps + fails > max_steps_per_piece ||
+          std::abs(dt) < 1e-15 * std::max(1.0, std::abs(t))) {
         piece.ok = false;
         piece.message = "step size collapsed near r/R = " + num(std::exp(t)) +
                         " (coefficients not smooth, or tolerance too tight)";
@@ -143,6 +159,7 @@ Evaluation evaluate(const ShootingProblem& problem, double sigma2, double x_matc
     in.y = {1.0, -3.0 * c.gamma1};
   } else {
     x_start = std::min(centre_start(tol), 0.5 * x_match);
+    if (!problem.breaks.empty()) x_start = std::min(x_start, problem.breaks.front());
     const LaweCoefficients c = problem.coefficients(x_start, 0);
     const double V2 = c.V / (x_start * x_start);
     const double s = sigma2 * c.x3_over_q;
@@ -156,10 +173,11 @@ Evaluation evaluate(const ShootingProblem& problem, double sigma2, double x_matc
   // Outer solution.
   Piece out;
   {
-    const std::size_t last = problem.interfaces.size();
-    const LaweCoefficients c = problem.coefficients(problem.x_surface, last);
+    const LaweCoefficients c = problem.coefficients(problem.x_surface, problem.breaks.size());
     if (options.surface == SurfaceCondition::fixed_pressure && !problem.singular_surface)
       out.y = {1.0, 0.0};
+    else if (problem.singular_surface)
+      out.y = {1.0, -(c.V / c.Vp) * (4.0 + sigma2 * c.x3_over_q)}; // regular solution
     else
       out.y = {1.0, -(4.0 + sigma2 * c.x3_over_q)};
   }
@@ -195,10 +213,7 @@ double matching_point(const ShootingProblem& problem, double frac, std::string& 
     x = 0.5 * (problem.x_inner + problem.x_surface);
     note = "matching radius r/R = " + num(frac) + " lies outside the model; using " + num(x);
   }
-  // Not exactly on an interface.
-  for (double xi : problem.interfaces)
-    if (std::abs(x - xi) < 1e-9) x = xi + 1e-6 * (problem.x_surface - xi);
-  return x;
+  return x; // may sit on a break: both integrations then simply stop there
 }
 
 struct Root {
@@ -335,6 +350,40 @@ Root find_root(const ShootingProblem& problem, double guess, double x_match,
   return root;
 }
 
+ShootResult shoot_checked(const ShootingProblem& problem, double sigma2_guess,
+                          const ShootOptions& options) {
+  ShootResult result;
+  std::string note;
+  const double x_match = matching_point(problem, options.match_r_frac, note);
+  const Root tight = find_root(problem, sigma2_guess, x_match, options, options.rel_tol);
+  result.iterations = tight.iterations;
+  result.sigma2 = tight.sigma2;
+  result.omega2 = tight.sigma2; // dimensionless problem: omega2 in units of GM/R^3
+  result.nodes = tight.nodes;
+  result.mismatch = std::abs(tight.D);
+  if (!tight.converged) {
+    result.message = tight.message;
+    if (!note.empty()) result.message += "; " + note;
+    return result;
+  }
+  // Error estimate from a second solve at a 10x looser tolerance.
+  const double loose_tol = std::min(1e-3, 10.0 * options.rel_tol);
+  const Root loose = find_root(problem, tight.sigma2, x_match, options, loose_tol);
+  result.iterations += loose.iterations;
+  const double floor = options.rel_tol * std::max(std::abs(tight.sigma2), 1.0);
+  if (!loose.converged) {
+    // Without an error estimate the value cannot be trusted: report it as not converged.
+    result.message = "no error estimate: the solve at tolerance " + num(loose_tol) +
+                     " failed (" + loose.message + ")";
+    if (!note.empty()) result.message += "; " + note;
+    return result;
+  }
+  result.error_estimate = std::abs(loose.sigma2 - tight.sigma2) + tight.width + floor;
+  result.converged = true;
+  result.message = note;
+  return result;
+}
+
 } // namespace
 
 void ShootOptions::validate() const {
@@ -359,34 +408,101 @@ ShootResult shoot_sigma2(const ShootingProblem& problem, double sigma2_guess,
     result.message = "invalid shooting problem or non-finite starting value";
     return result;
   }
-  std::string note;
-  const double x_match = matching_point(problem, options.match_r_frac, note);
-  const Root tight = find_root(problem, sigma2_guess, x_match, options, options.rel_tol);
-  result.iterations = tight.iterations;
-  result.sigma2 = tight.sigma2;
-  result.omega2 = tight.sigma2; // dimensionless problem: omega2 in units of GM/R^3
-  result.nodes = tight.nodes;
-  result.mismatch = std::abs(tight.D);
-  if (!tight.converged) {
-    result.message = tight.message;
-    if (!note.empty()) result.message += "; " + note;
+  try {
+    return shoot_checked(problem, sigma2_guess, options);
+  } catch (const Error& e) {
+    // E.g. a coefficient requested outside the structure: a numerical outcome, not bad input.
+    result.message = std::string("shooting failed: ") + e.what();
     return result;
   }
-  // Error estimate from a second solve at a 10x looser tolerance.
-  const double loose_tol = std::min(1e-3, 10.0 * options.rel_tol);
-  const Root loose = find_root(problem, tight.sigma2, x_match, options, loose_tol);
-  result.iterations += loose.iterations;
-  const double floor = options.rel_tol * std::max(std::abs(tight.sigma2), 1.0);
-  if (loose.converged) {
-    result.error_estimate = std::abs(loose.sigma2 - tight.sigma2) + tight.width + floor;
-  } else {
-    result.error_estimate = std::abs(tight.sigma2) + 1.0; // no estimate: flag it as useless
-    note += std::string(note.empty() ? "" : "; ") +
-            "error estimate unavailable (looser solve failed: " + loose.message + ")";
+}
+
+
+ShootingProblem shooting_problem(const StellarModel& model, const ShootOptions& options) {
+  options.validate();
+  auto structure = std::make_shared<const Structure>(model, options.inner);
+  const std::vector<double>& node_r = structure->node_r();
+  const double R = structure->radius();
+  const double M = structure->mass();
+  const std::size_t n_iv = structure->interval_count();
+
+  ShootingProblem problem;
+  problem.x_inner = node_r.front() / R;
+  // Every interior node is a break; piece i is table interval i.
+  for (std::size_t i = 1; i < n_iv; ++i) {
+    problem.breaks.push_back(node_r[i] / R);
+    problem.pressure_jump.push_back(structure->at(i - 1, 1.0).P / structure->at(i, 0.0).P);
   }
-  result.converged = true;
-  result.message = note;
-  return result;
+  problem.singular_surface = !(structure->surface_pressure() > 0.0);
+  if (problem.singular_surface) {
+    const double last_interval = (R - node_r[n_iv - 1]) / R;
+    problem.x_surface = 1.0 - std::min(1e-7, 1e-3 * last_interval);
+  }
+  const bool centre = problem.x_inner == 0.0;
+  const double r1 = node_r[1];
+  const double m1 = structure->at(0, 1.0).m;
+  problem.coefficients = [structure, R, M, centre, r1, m1](double x, std::size_t piece) {
+    const double r = x * R;
+    const std::vector<double>& nr = structure->node_r();
+    const double r0 = nr[piece], r1_piece = nr[piece + 1];
+    const double t = std::clamp((r - r0) / (r1_piece - r0), 0.0, 1.0);
+    const StructurePoint p = structure->at(piece, t);
+    LaweCoefficients c;
+    c.gamma1 = p.gamma1;
+    if (centre && piece == 0) {
+      // Regular centre (see shooting.hpp): m ~ r^3 and hydrostatic Vp = V.
+      const double m = m1 * (r / r1) * (r / r1) * (r / r1);
+      c.V = constants::G * m * p.rho / (r * p.P);
+      c.Vp = c.V;
+      c.x3_over_q = x * x * x * M / m;
+      return c;
+    }
+    c.V = constants::G * p.m * p.rho / (r * p.P);
+    // -dlnP/dlnr of the interpolation: log-linear P has constant dlnP/dr in the interval;
+    // linear P (an end at P = 0) has dP/dr constant.
+    const StructurePoint a = structure->at(piece, 0.0), b = structure->at(piece, 1.0);
+    const double dlnP_dr = (a.P > 0.0 && b.P > 0.0) ? std::log(b.P / a.P) / (r1_piece - r0)
+                                                    : (b.P - a.P) / ((r1_piece - r0) * p.P);
+    c.Vp = -r * dlnP_dr;
+    c.x3_over_q = x * x * x * M / p.m;
+    return c;
+  };
+  return problem;
+}
+
+ShootResult shoot_mode(const StellarModel& model, double omega2_guess,
+                       const ShootOptions& options) {
+  const ShootingProblem problem = shooting_problem(model, options);
+  const double unit = constants::G * model.mass() / std::pow(model.radius(), 3); // GM/R^3 [s^-2]
+  ShootResult r = shoot_sigma2(problem, omega2_guess / unit, options);
+  r.omega2 = r.sigma2 * unit;
+  r.error_estimate *= unit;
+  return r;
+}
+
+std::vector<VerifyResult> verify_modes(const StellarModel& model, const ModeSet& modes,
+                                       const ShootOptions& options) {
+  const ShootingProblem problem = shooting_problem(model, options);
+  const double unit = constants::G * model.mass() / std::pow(model.radius(), 3); // [s^-2]
+  std::vector<VerifyResult> out;
+  out.reserve(modes.modes.size());
+  for (const ModeSolution& mode : modes.modes) {
+    VerifyResult v;
+    v.order = mode.order;
+    v.omega2_fe = mode.omega2;
+    v.shoot = shoot_sigma2(problem, mode.omega2 / unit, options);
+    v.shoot.omega2 = v.shoot.sigma2 * unit;
+    v.shoot.error_estimate *= unit;
+    v.omega2_shoot = v.shoot.converged ? v.shoot.omega2 : mode.omega2;
+    v.abs_diff = std::abs(v.omega2_shoot - v.omega2_fe);
+    v.rel_diff = v.abs_diff / std::max(std::abs(v.omega2_fe), 1e-6 * unit);
+    v.tolerance = options.agree_factor * (mode.error_estimate + v.shoot.error_estimate) +
+                  1e-9 * (std::abs(v.omega2_fe) + unit);
+    v.nodes_agree = v.shoot.converged && v.shoot.nodes == mode.order;
+    v.agrees = v.shoot.converged && v.abs_diff <= v.tolerance && v.nodes_agree;
+    out.push_back(std::move(v));
+  }
+  return out;
 }
 
 } // namespace radmode

@@ -1,10 +1,16 @@
 // Tests of the shooting solver (shooting.hpp) against closed-form results.
+#include "radmode/constants.hpp"
 #include "radmode/error.hpp"
 #include "radmode/shooting.hpp"
 
+#include "analytic_models.hpp"
+
 #include <doctest/doctest.h>
 
+#include <algorithm>
 #include <cmath>
+#include <cstddef>
+#include <vector>
 #include <string>
 
 using namespace radmode;
@@ -21,6 +27,7 @@ ShootingProblem uniform_sphere(double gamma1, double delta = 1e-7) {
   p.coefficients = [gamma1](double x, std::size_t) {
     LaweCoefficients c;
     c.V = 2.0 * x * x / (1.0 - x * x);
+    c.Vp = c.V; // hydrostatic equilibrium
     c.gamma1 = gamma1;
     c.x3_over_q = 1.0;
     return c;
@@ -116,17 +123,18 @@ TEST_CASE("matching point and surface start do not change the eigenvalue") {
   CHECK(e5 < e4 / 30.0);
 }
 
-TEST_CASE("density discontinuity: the integration restarts with the other side's coefficients") {
-  // Uniform sphere split at x = 0.6 into two segments with identical coefficients: the answer
-  // must not change (the restart itself must be exact).
+TEST_CASE("breaks: the integration restarts with each piece's coefficients; delta P continuous") {
+  // Uniform sphere split at x = 0.6 into two pieces with identical coefficients: the answer
+  // must not change (the restart itself must be exact), and each piece is evaluated only on
+  // its own side.
   ShootingProblem p = uniform_sphere(5.0 / 3.0);
-  p.interfaces = {0.6};
+  p.breaks = {0.6};
   int calls_outer = 0, wrong_side = 0;
   const auto base = p.coefficients;
-  p.coefficients = [base, &calls_outer, &wrong_side](double x, std::size_t seg) {
-    if (seg == 1) ++calls_outer;
-    if ((seg == 1 && x < 0.6) || (seg == 0 && x > 0.6) || seg > 1) ++wrong_side;
-    return base(x, seg);
+  p.coefficients = [base, &calls_outer, &wrong_side](double x, std::size_t piece) {
+    if (piece == 1) ++calls_outer;
+    if ((piece == 1 && x < 0.6) || (piece == 0 && x > 0.6) || piece > 1) ++wrong_side;
+    return base(x, piece);
   };
   const ShootResult r = shoot_sigma2(p, 31.5);
   REQUIRE(r.converged);
@@ -134,6 +142,12 @@ TEST_CASE("density discontinuity: the integration restarts with the other side's
   CHECK(wrong_side == 0);
   CHECK(r.nodes == 2);
   CHECK(r.sigma2 == doctest::Approx(31.0).epsilon(1e-8));
+
+  // A pressure_jump of 1 (continuous P) is the same as none.
+  p.pressure_jump = {1.0};
+  const ShootResult rj = shoot_sigma2(p, 31.5);
+  REQUIRE(rj.converged);
+  CHECK(rj.sigma2 == r.sigma2);
 }
 
 TEST_CASE("fixed surface pressure on a model with P_s > 0, and a rigid inner boundary") {
@@ -144,7 +158,8 @@ TEST_CASE("fixed surface pressure on a model with P_s > 0, and a rigid inner bou
   p.singular_surface = false;
   p.coefficients = [](double x, std::size_t) {
     const double y = 0.9 * x;
-    return LaweCoefficients{2.0 * y * y / (1.0 - y * y), 5.0 / 3.0, 1.0};
+    const double V = 2.0 * y * y / (1.0 - y * y);
+    return LaweCoefficients{V, V, 5.0 / 3.0, 1.0};
   };
   // Regular surface condition: xi = const, p = -3 Gamma1 xi solves the interior equations of any
   // uniform-density model and meets p = -(4 + sigma^2) xi for sigma^2 = 3 Gamma1 - 4 = 1, so the
@@ -221,7 +236,7 @@ TEST_CASE("options are validated and problems report failures as statuses") {
   // Coefficients that produce a non-finite solution are reported, not thrown.
   ShootingProblem bad = uniform_sphere(5.0 / 3.0);
   bad.coefficients = [](double, std::size_t) {
-    return LaweCoefficients{std::nan(""), 5.0 / 3.0, 1.0};
+    return LaweCoefficients{std::nan(""), std::nan(""), 5.0 / 3.0, 1.0};
   };
   const ShootResult rb = shoot_sigma2(bad, 1.0);
   CHECK_FALSE(rb.converged);
@@ -230,4 +245,118 @@ TEST_CASE("options are validated and problems report failures as statuses") {
   ShootingProblem empty;
   const ShootResult re = shoot_sigma2(empty, 1.0);
   CHECK_FALSE(re.converged);
+}
+
+TEST_CASE("tabulated uniform sphere through Structure: Sterne's values, convergence in h") {
+  // Sterne 1937 (MNRAS 97, 582) again, now from a table. The shooting solves the continuous
+  // problem of the interpolated structure (log-linear P and rho, linear m), whose eigenvalues
+  // approach the closed form like h^2 ln(1/h): log-linear interpolation of P ~ (R - r) near the
+  // surface is off by ~1/(8 k^2) in the k-th interval from the surface. Measured here: the
+  // error falls by more than 3x per halving of h (order > 1.6; the overtones are not yet fully
+  // asymptotic) and is below 2e-5 (F) and 4e-5 (4O) at 3200 intervals.
+  const double gamma1 = 5.0 / 3.0;
+  const StellarModel coarse = test::uniform_sphere(test::uniform_mesh(1600), gamma1);
+  const StellarModel fine = test::uniform_sphere(test::uniform_mesh(3200), gamma1);
+  const double unit = constants::G * fine.mass() / std::pow(fine.radius(), 3);
+  for (int k = 0; k < 5; ++k) {
+    const double exact = sterne(gamma1, k) * unit;
+    const ShootResult rc = shoot_mode(coarse, exact * 1.01);
+    const ShootResult rf = shoot_mode(fine, exact * 1.01);
+    CAPTURE(k);
+    CAPTURE(rf.message);
+    REQUIRE(rc.converged);
+    REQUIRE(rf.converged);
+    CHECK(rc.nodes == k);
+    CHECK(rf.nodes == k);
+    const double ec = std::abs(rc.omega2 - exact), ef = std::abs(rf.omega2 - exact);
+    CAPTURE(ec / exact);
+    CAPTURE(ef / exact);
+    CHECK(ef < (k == 0 ? 2e-5 : 4e-5) * exact);
+    const double order = std::log2(ec / ef);
+    CAPTURE(order);
+    CHECK(order > 1.6);
+    CHECK(order < 2.2);
+    // The integration error itself is far smaller than the interpolation error.
+    CHECK(rf.error_estimate < 1e-7 * exact);
+  }
+}
+
+TEST_CASE("tabulated model without a centre row and with a repeated radius") {
+  // The structure extends a model starting at r_0 > 0 with a uniform core; for the uniform
+  // sphere that is exact, so the answer stays Sterne's. A repeated radius with identical rows
+  // on both sides (a "discontinuity" of size zero) must not change anything either.
+  const double gamma1 = 1.4;
+  std::vector<double> x = test::uniform_mesh(800, 0.0);
+  x.erase(x.begin()); // no centre row
+  StellarModel model = test::uniform_sphere(x, gamma1);
+  const double unit = constants::G * model.mass() / std::pow(model.radius(), 3);
+  const ShootResult plain = shoot_mode(model, 9.5 * unit);
+  REQUIRE(plain.converged);
+  CHECK(plain.nodes == 1);
+  CHECK(plain.omega2 == doctest::Approx(sterne(gamma1, 1) * unit).epsilon(3e-4));
+
+  // Duplicate row 400 (r/R = 0.5).
+  StellarModel split = model;
+  auto dup = [](std::vector<double>& v, std::size_t i) {
+    v.insert(v.begin() + static_cast<std::ptrdiff_t>(i), v[i]);
+  };
+  for (auto* v : {&split.r, &split.m, &split.P, &split.rho, &split.gamma1}) dup(*v, 399);
+  const ShootingProblem p = shooting_problem(split);
+  // Every interior node is a break; the repeated radius gives one node, not two.
+  REQUIRE(p.breaks.size() == 799); // 800 rows + centre row + duplicate = 801 nodes
+  const auto at_half = static_cast<std::size_t>(
+      std::lower_bound(p.breaks.begin(), p.breaks.end(), 0.5 - 1e-12) - p.breaks.begin());
+  REQUIRE(at_half + 1 < p.breaks.size());
+  CHECK(p.breaks[at_half] == doctest::Approx(0.5).epsilon(1e-14));
+  CHECK(p.breaks[at_half + 1] > 0.5 + 1e-4);
+  const ShootResult r = shoot_mode(split, 9.5 * unit);
+  REQUIRE(r.converged);
+  CHECK(r.nodes == 1);
+  CHECK(r.omega2 == doctest::Approx(plain.omega2).epsilon(1e-9));
+  for (std::size_t j = 0; j < p.pressure_jump.size(); ++j) CHECK(p.pressure_jump[j] == 1.0);
+
+  // A pressure that differs between the two rows of the repeated radius is carried as a jump
+  // of p = delta P/P (delta P continuous): p_out = p_in * P_in/P_out.
+  StellarModel jump = split;
+  jump.P[400] *= 0.99; // the row that starts the outer interval
+  const ShootingProblem pj = shooting_problem(jump);
+  CHECK(pj.pressure_jump[at_half] == doctest::Approx(1.0 / 0.99).epsilon(1e-14));
+  CHECK(pj.pressure_jump[at_half - 1] == 1.0);
+}
+
+TEST_CASE("verify_modes compares a ModeSet by shooting") {
+  // A hand-made ModeSet with the closed-form eigenvalues of a tabulated uniform sphere
+  // (Sterne 1937) and honest error estimates agrees; one with a wrong value does not.
+  const double gamma1 = 5.0 / 3.0;
+  const StellarModel model = test::uniform_sphere(test::uniform_mesh(1000), gamma1);
+  const double unit = constants::G * model.mass() / std::pow(model.radius(), 3);
+  ModeSet set;
+  for (int k = 0; k < 3; ++k) {
+    ModeSolution m;
+    m.order = k;
+    m.nodes = k;
+    m.omega2 = sterne(gamma1, k) * unit;
+    m.error_estimate = 1e-4 * m.omega2; // covers the O(h^2) table interpolation error
+    set.modes.push_back(m);
+  }
+  ModeSet wrong = set;
+  wrong.modes[1].omega2 *= 1.01;
+  wrong.modes[2].order = 3; // order that the node count contradicts
+  const auto ok = verify_modes(model, set);
+  REQUIRE(ok.size() == 3);
+  for (const auto& v : ok) {
+    CAPTURE(v.order);
+    CAPTURE(v.shoot.message);
+    CHECK(v.shoot.converged);
+    CHECK(v.nodes_agree);
+    CHECK(v.agrees);
+    CHECK(v.rel_diff < 1e-4);
+  }
+  const auto bad = verify_modes(model, wrong);
+  REQUIRE(bad.size() == 3);
+  CHECK(bad[0].agrees);
+  CHECK_FALSE(bad[1].agrees); // 1 % off, far outside 3 x (1e-4 + shooting estimate)
+  CHECK(bad[1].rel_diff == doctest::Approx(0.01 / 1.01).epsilon(1e-3));
+  CHECK_FALSE(bad[2].nodes_agree);
+  CHECK_FALSE(bad[2].agrees);
 }

@@ -97,8 +97,6 @@ PeriodDays to_period_days(double value, double sigma, ObservedUnit unit) {
   return {value, sigma};
 }
 
-std::string order_label(int order) { return order == 0 ? "F" : std::to_string(order) + "O"; }
-
 std::optional<int> parse_order_label(const std::string& token) {
   if (token == "F" || token == "f") return 0;
   if (token.size() < 2) return std::nullopt;
@@ -270,13 +268,13 @@ void validate_observations(const ObservationSet& set) {
       if (*oa.label == *ob.label)
         throw InputError(ErrorKind::bad_format, file,
                          oa.origin + " and " + ob.origin + " both carry the label " +
-                             order_label(*oa.label) + "; expected one observation per mode");
+                             mode_label(*oa.label) + "; expected one observation per mode");
       const bool a_longer = oa.period_d > ob.period_d;
       const bool b_longer = ob.period_d > oa.period_d;
       if ((a_longer && *oa.label > *ob.label) || (b_longer && *ob.label > *oa.label))
         throw InputError(ErrorKind::bad_format, file,
-                         oa.origin + " (" + order_label(*oa.label) + ") and " + ob.origin + " (" +
-                             order_label(*ob.label) +
+                         oa.origin + " (" + mode_label(*oa.label) + ") and " + ob.origin + " (" +
+                             mode_label(*ob.label) +
                              "): the longer period carries the higher order; expected "
                              "periods to decrease with order");
     }
@@ -329,7 +327,7 @@ std::vector<ModelPeriod> scale_periods(std::vector<ModelPeriod> modes, double sc
 namespace {
 
 std::string mode_name(const ModelPeriod& m) {
-  return m.order >= 0 ? order_label(m.order) : std::string("mode of unknown order");
+  return m.order >= 0 ? mode_label(m.order) : std::string("mode of unknown order");
 }
 
 /// Why no assignment exists (called only when the DP finds none).
@@ -340,10 +338,10 @@ std::string explain_no_assignment(const ObservationSet& obs, const std::vector<M
     auto it = std::find_if(all.begin(), all.end(),
                            [&](const ModelPeriod& m) { return m.order == *o.label; });
     if (it == all.end())
-      return o.origin + " is labelled " + order_label(*o.label) +
+      return o.origin + " is labelled " + mode_label(*o.label) +
              " but that mode was not solved (ask for more modes)";
     if (!it->usable)
-      return o.origin + " is labelled " + order_label(*o.label) + " but that mode is excluded (" +
+      return o.origin + " is labelled " + mode_label(*o.label) + " but that mode is excluded (" +
              it->why_not + ")";
   }
   if (obs.items.size() > usable_count)
@@ -439,7 +437,7 @@ MatchResult match_modes(const ObservationSet& observations, const std::vector<Mo
       const auto& hi = sorted[b];
       const auto& olo = items[lo.observation];
       const auto& ohi = items[hi.observation];
-      PeriodRatio r;
+      RatioComparison r;
       r.order_long = lo.order;
       r.order_short = hi.order;
       r.observation_long = lo.observation;

@@ -114,8 +114,8 @@ TEST_CASE("unit tokens and labels") {
   CHECK_FALSE(parse_order_label("0O"));
   CHECK_FALSE(parse_order_label("O"));
   CHECK_FALSE(parse_order_label("1X"));
-  CHECK(order_label(0) == "F");
-  CHECK(order_label(3) == "3O");
+  CHECK(mode_label(0) == "F");
+  CHECK(mode_label(3) == "3O");
 }
 
 // ---- observation files ---------------------------------------------------------------------

@@ -37,6 +37,7 @@
 // take, and the lowest chi^2 wins. Then R = R_ref s^(2/3), sigma_R = (2/3) R sigma_s / s,
 // rho_mean = rho_ref s^-2, sigma_rho = 2 rho_mean sigma_s / s.
 #include "radmode/eigensolve.hpp"
+#include "radmode/modes.hpp" // mode_label
 
 #include <cstddef>
 #include <optional>
@@ -63,8 +64,6 @@ struct PeriodDays {
 };
 PeriodDays to_period_days(double value, double sigma, ObservedUnit unit);
 
-/// Radial-order label: 0 -> "F", k -> "kO".
-std::string order_label(int order);
 /// Parses "F", "1O", "2O", ... (case-insensitive); nullopt if not a label.
 std::optional<int> parse_order_label(const std::string& token);
 
@@ -119,7 +118,7 @@ struct Assignment {
 };
 
 /// Ratio of two assigned periods, shorter over longer (e.g. P1/P0), observed and model.
-struct PeriodRatio {
+struct RatioComparison {
   int order_short = -1;     ///< numerator order (higher)
   int order_long = -1;      ///< denominator order (lower)
   std::size_t observation_short = 0;
@@ -139,7 +138,7 @@ struct MatchResult {
   std::string message;                  ///< why, when status != ok
   double chi2 = 0;                      ///< valid when ok
   std::vector<Assignment> assignments;  ///< one per observation, in input order (when ok)
-  std::vector<PeriodRatio> ratios;      ///< every assigned pair (when ok)
+  std::vector<RatioComparison> ratios;      ///< every assigned pair (when ok)
   std::vector<std::string> excluded;    ///< modes left out of matching and why
 };
 

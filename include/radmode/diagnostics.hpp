@@ -51,6 +51,7 @@
 #include "radmode/model.hpp"
 
 #include <cstddef>
+#include <ostream>
 #include <string>
 #include <vector>
 
@@ -143,6 +144,10 @@ const char* pn_energy_name(PnEnergy e) noexcept;
 /// Writes the diagnostics as key/value pairs into the JSON object currently open in `json`
 /// (snake_case keys, units in the names; see docs/inspect.md). Does not write "warnings".
 void write_diagnostics_json(JsonWriter& json, const ModelDiagnostics& d);
+
+/// Writes the readable diagnostics block (model, time scales, checks, Gamma1 criterion,
+/// relativity, warnings), every quantity with its units; ends with a newline.
+void write_diagnostics_text(std::ostream& out, const ModelDiagnostics& d);
 
 /// Writes "warnings": [{"code": ..., "message": ...}, ...] into the open object.
 void write_warnings_json(JsonWriter& json, const std::vector<DiagnosticWarning>& warnings);

@@ -44,12 +44,16 @@ std::size_t distinct_after(const std::vector<double>& x, std::size_t i) {
   return npos;
 }
 
-/// Relative HSE residual at point i with the derivative of y with respect to x (distinct
-/// neighbours), against `target` (the exact dy/dx in equilibrium, < 0). NaN when unavailable.
+/// Relative HSE residual at point i with the derivative of y with respect to x over the
+/// nearest distinct neighbours a < i < b, against `target` (the exact dy/dx in equilibrium,
+/// < 0). NaN when there is no such stencil or `resolved(a, b)` says the stencil cannot resolve
+/// the profile.
+template <class Resolved>
 double residual_form(const std::vector<double>& x, const std::vector<double>& y, std::size_t i,
-                     double target) {
+                     double target, Resolved resolved) {
   const std::size_t a = distinct_before(x, i), b = distinct_after(x, i);
-  if (a == npos || b == npos || !(target < 0.0)) return std::numeric_limits<double>::quiet_NaN();
+  if (a == npos || b == npos || !(target < 0.0) || !resolved(a, b))
+    return std::numeric_limits<double>::quiet_NaN();
   const double d = derivative3(x[a], x[i], x[b], y[a], y[i], y[b]);
   return std::abs(d - target) / std::abs(target);
 }
@@ -248,8 +252,16 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
       const double g_rho = G * m[i] * rho[i] / (r[i] * r[i]);
       const double target_s = -3.0 * G * std::cbrt(std::pow(m[i], 4)) /
                               (8.0 * pi * std::pow(r[i], 4));
-      const double by_r = residual_form(r, P, i, -g_rho);
-      const double by_m = residual_form(s, P, i, target_s);
+      // Radius form: only where P changes by less than a factor 2 across the stencil (next to
+      // a power-law zero of P the three-point difference has an O(1) error).
+      const double by_r = residual_form(r, P, i, -g_rho, [&](std::size_t a, std::size_t b) {
+        return std::min(P[a], P[b]) >= 0.5 * std::max(P[a], P[b]);
+      });
+      // Mass form: only where the mass differences are resolved (>= 1e-6 m: a table written
+      // with 8 digits, or integrated to 1e-9, still gives them to 1 %).
+      const double by_m = residual_form(s, P, i, target_s, [&](std::size_t a, std::size_t b) {
+        return m[i] - m[a] >= 1e-6 * m[i] && m[b] - m[i] >= 1e-6 * m[i];
+      });
       double res;
       if (std::isnan(by_r) && std::isnan(by_m)) {
         ++d.hse_points_skipped;

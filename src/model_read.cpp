@@ -409,7 +409,13 @@ StellarModel TableReader::read() {
     switch (classify(line)) {
     case LineType::blank: continue;
     case LineType::comment:
-      if (auto kv = metadata_of(line)) m_metadata.push_back(std::move(*kv));
+      if (auto kv = metadata_of(line)) {
+        if (kv->second.find('\r') != std::string::npos)
+          throw InputError(ErrorKind::bad_format, at(m_line_no),
+                           "metadata value of '" + kv->first +
+                               "' holds a carriage return; expected one line of text");
+        m_metadata.push_back(std::move(*kv));
+      }
       continue;
     case LineType::content: break;
     }

@@ -1,0 +1,601 @@
+// Table reader: native format and foreign tables through a column map (model_io.hpp).
+// One pass over the text held in memory; numbers parsed with std::from_chars, no per-number
+// allocation.
+#include "radmode/model_io.hpp"
+
+#include "radmode/constants.hpp"
+#include "radmode/error.hpp"
+
+#include <algorithm>
+#include <cerrno>
+#include <charconv>
+#include <cmath>
+#include <cstdio>
+#include <cstdlib>
+#include <cstring>
+#include <memory>
+
+#include <sys/stat.h>
+
+namespace radmode {
+
+namespace {
+
+// --- Quantities and units -----------------------------------------------------------------
+
+struct Quantity {
+  const char* name;
+  std::vector<double> StellarModel::*member;
+  bool required;
+};
+
+constexpr std::size_t n_quantities = 9;
+const Quantity quantities[n_quantities] = {
+    {"r", &StellarModel::r, true},           {"m", &StellarModel::m, true},
+    {"P", &StellarModel::P, true},           {"rho", &StellarModel::rho, true},
+    {"Gamma1", &StellarModel::gamma1, true}, {"T", &StellarModel::T, false},
+    {"L", &StellarModel::L, false},          {"nabla_ad", &StellarModel::nabla_ad, false},
+    {"u", &StellarModel::u, false}};
+
+constexpr std::size_t not_a_quantity = n_quantities;
+
+std::size_t quantity_index(std::string_view name) {
+  for (std::size_t q = 0; q < n_quantities; ++q)
+    if (name == quantities[q].name) return q;
+  return not_a_quantity;
+}
+
+std::string quantity_list() {
+  std::string out;
+  for (const auto& q : quantities) out += (out.empty() ? "" : " ") + std::string(q.name);
+  return out;
+}
+
+/// value_cgs = log10 ? 10^(x) * factor : x * factor
+struct Unit {
+  bool log10 = false;
+  double factor = 1.0;
+};
+
+struct ScaleUnit {
+  const char* name;
+  std::size_t quantity; // not_a_quantity: valid for every quantity
+  double factor;
+};
+
+const ScaleUnit scale_units[] = {
+    {"cgs", not_a_quantity, 1.0},      {"cm", 0, 1.0}, {"km", 0, 1.0e5},
+    {"Rsun", 0, constants::R_sun},     {"g", 1, 1.0},  {"Msun", 1, constants::M_sun},
+    {"Lsun", 6, constants::L_sun}};
+
+/// Parses a unit string for quantity q; on failure returns nullopt and sets `why`.
+std::optional<Unit> parse_unit(std::string_view text, std::size_t q, std::string& why) {
+  Unit unit;
+  std::string_view scale = text;
+  if (text == "log10") {
+    unit.log10 = true;
+    return unit;
+  }
+  if (text.size() > 7 && text.substr(0, 6) == "log10(" && text.back() == ')') {
+    unit.log10 = true;
+    scale = text.substr(6, text.size() - 7);
+  }
+  if (scale.empty() && !unit.log10) return unit;
+  for (const auto& s : scale_units) {
+    if (scale != s.name) continue;
+    if (s.quantity != not_a_quantity && s.quantity != q) {
+      why = "unit '" + std::string(text) + "' does not apply to " + quantities[q].name +
+            " (it is a unit of " + quantities[s.quantity].name + ")";
+      return std::nullopt;
+    }
+    unit.factor = s.factor;
+    return unit;
+  }
+  why = "unknown unit '" + std::string(text) +
+        "'; expected cgs, cm, km, Rsun (r), g, Msun (m), Lsun (L), log10 or log10(UNIT)";
+  return std::nullopt;
+}
+
+bool is_column_number(std::string_view s) {
+  return !s.empty() && s.size() <= 9 &&
+         std::all_of(s.begin(), s.end(), [](char c) { return c >= '0' && c <= '9'; });
+}
+
+std::size_t column_number(std::string_view s) {
+  std::size_t n = 0;
+  std::from_chars(s.data(), s.data() + s.size(), n);
+  return n;
+}
+
+std::string_view trim(std::string_view s) {
+  const char* ws = " \t\r\v\f";
+  const auto b = s.find_first_not_of(ws);
+  if (b == std::string_view::npos) return {};
+  const auto e = s.find_last_not_of(ws);
+  return s.substr(b, e - b + 1);
+}
+
+// --- Lines and fields ---------------------------------------------------------------------
+
+bool is_blank_char(char c) {
+  return c == ' ' || c == '\t' || c == '\r' || c == '\v' || c == '\f' || c == ',';
+}
+
+/// Splits a line into fields (separators: whitespace and commas; `#` ends the line).
+class FieldCursor {
+public:
+  explicit FieldCursor(std::string_view line) : m_p(line.data()), m_end(line.data() + line.size()) {}
+  bool next(std::string_view& field) {
+    while (m_p < m_end && is_blank_char(*m_p)) ++m_p;
+    if (m_p == m_end || *m_p == '#') return false;
+    const char* start = m_p;
+    while (m_p < m_end && !is_blank_char(*m_p) && *m_p != '#') ++m_p;
+    field = std::string_view(start, static_cast<std::size_t>(m_p - start));
+    return true;
+  }
+
+private:
+  const char* m_p;
+  const char* m_end;
+};
+
+enum class LineType { blank, comment, content };
+
+LineType classify(std::string_view line) {
+  for (char c : line) {
+    if (c == '#') return LineType::comment;
+    if (!is_blank_char(c)) return LineType::content;
+  }
+  return LineType::blank;
+}
+
+bool is_key_char(char c) {
+  return (c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') ||
+         c == '_' || c == '.' || c == '-';
+}
+
+/// `# key = value` -> (key, value); other comments -> nullopt.
+std::optional<std::pair<std::string, std::string>> metadata_of(std::string_view line) {
+  line = trim(line);
+  if (line.empty() || line[0] != '#') return std::nullopt;
+  line = trim(line.substr(1));
+  std::size_t k = 0;
+  while (k < line.size() && is_key_char(line[k])) ++k;
+  if (k == 0) return std::nullopt;
+  const std::string_view rest = trim(line.substr(k));
+  if (rest.empty() || rest[0] != '=') return std::nullopt;
+  return std::make_pair(std::string(line.substr(0, k)), std::string(trim(rest.substr(1))));
+}
+
+// --- Reading ------------------------------------------------------------------------------
+
+/// What one field of a row feeds.
+struct Target {
+  std::size_t slot = 0; ///< index into the value arrays; `ignored` when the field is not read
+  Unit unit;
+};
+constexpr std::size_t ignored = static_cast<std::size_t>(-1);
+
+struct Slot {
+  std::size_t quantity = not_a_quantity; ///< not_a_quantity: an extra column
+  std::size_t column = 0;                ///< 1-based field number
+  std::string name;                      ///< header name (or quantity name without header)
+  std::vector<double> values;
+};
+
+class TableReader {
+public:
+  TableReader(std::string_view text, const std::string& source, const ReadOptions& options)
+      : m_text(text), m_source(source), m_options(options) {}
+
+  StellarModel read();
+
+private:
+  Location at(std::size_t line, std::size_t column = 0, const std::string& name = {}) const {
+    Location loc;
+    loc.file = m_source;
+    loc.line = line;
+    loc.column = column;
+    loc.column_name = name;
+    return loc;
+  }
+  bool next_line(std::string_view& line);
+  void set_up_native(std::string_view header);
+  void set_up_mapped(std::string_view first, bool& first_is_data);
+  void read_row(std::string_view line);
+  StellarModel assemble();
+
+  std::string_view m_text;
+  std::size_t m_pos = 0;
+  std::size_t m_line_no = 0; ///< 1-based number of the line last returned by next_line
+  const std::string& m_source;
+  const ReadOptions& m_options;
+
+  std::vector<std::pair<std::string, std::string>> m_metadata;
+  std::vector<Target> m_targets; ///< one per field of a row
+  std::vector<Slot> m_slots;
+  std::vector<std::size_t> m_lines;
+  std::size_t m_header_line = 0;
+};
+
+bool TableReader::next_line(std::string_view& line) {
+  if (m_pos >= m_text.size()) return false;
+  const std::size_t nl = m_text.find('\n', m_pos);
+  const std::size_t end = nl == std::string_view::npos ? m_text.size() : nl;
+  line = m_text.substr(m_pos, end - m_pos);
+  m_pos = end + 1;
+  ++m_line_no;
+  return true;
+}
+
+void TableReader::set_up_native(std::string_view header) {
+  m_header_line = m_line_no;
+  FieldCursor cur(header);
+  std::string_view field;
+  std::size_t column = 0;
+  std::size_t found[n_quantities];
+  std::fill(std::begin(found), std::end(found), std::size_t{0});
+  while (cur.next(field)) {
+    ++column;
+    std::string name(field);
+    std::string_view base = field;
+    std::string_view unit_text;
+    const auto open = field.find('[');
+    if (open != std::string_view::npos && field.back() == ']') {
+      base = field.substr(0, open);
+      unit_text = field.substr(open + 1, field.size() - open - 2);
+    }
+    if (parse_number(field))
+      throw InputError(ErrorKind::missing_column, at(m_line_no, column),
+                       "expected a header line of column names (required: r m P rho Gamma1), "
+                       "found the number '" + name +
+                           "'; a table without a header needs a column map (--columns)");
+    const std::size_t q = quantity_index(base);
+    Target target;
+    if (q == not_a_quantity) {
+      // Extra column: kept under its full name, values as written.
+      for (const auto& s : m_slots)
+        if (s.name == name)
+          throw InputError(ErrorKind::bad_format, at(m_line_no, column, name),
+                           "column name repeated (first in column " + std::to_string(s.column) +
+                               ")");
+    } else {
+      if (found[q] != 0)
+        throw InputError(ErrorKind::bad_format, at(m_line_no, column, name),
+                         std::string("quantity ") + quantities[q].name +
+                             " given twice (first in column " + std::to_string(found[q]) + ")");
+      found[q] = column;
+      std::string why;
+      const auto unit = parse_unit(unit_text, q, why);
+      if (!unit) throw InputError(ErrorKind::bad_format, at(m_line_no, column, name), why);
+      target.unit = *unit;
+    }
+    target.slot = m_slots.size();
+    m_targets.push_back(target);
+    Slot slot;
+    slot.quantity = q;
+    slot.column = column;
+    slot.name = std::move(name);
+    m_slots.push_back(std::move(slot));
+  }
+  std::string missing;
+  for (std::size_t q = 0; q < n_quantities; ++q)
+    if (quantities[q].required && found[q] == 0)
+      missing += (missing.empty() ? "" : ", ") + std::string(quantities[q].name);
+  if (!missing.empty()) {
+    std::string names;
+    for (const auto& s : m_slots) names += (names.empty() ? "" : " ") + s.name;
+    throw InputError(ErrorKind::missing_column, at(m_line_no),
+                     "missing required column(s) " + missing + " in the header line '" + names +
+                         "' (required: r m P rho Gamma1; optional: T L nabla_ad u)");
+  }
+}
+
+void TableReader::set_up_mapped(std::string_view first, bool& first_is_data) {
+  // Fields of the first content line: a header unless every field is a number.
+  std::vector<std::string_view> fields;
+  {
+    FieldCursor cur(first);
+    std::string_view field;
+    while (cur.next(field)) fields.push_back(field);
+  }
+  const bool all_numbers =
+      std::all_of(fields.begin(), fields.end(), [](std::string_view f) { return bool(parse_number(f)); });
+  const bool by_name_needed =
+      std::any_of(m_options.columns.begin(), m_options.columns.end(),
+                  [](const auto& c) { return !is_column_number(c.second.source); });
+  first_is_data = all_numbers;
+  if (all_numbers && by_name_needed)
+    throw InputError(ErrorKind::missing_column, at(m_line_no),
+                     "the column map names columns by header name, but this first table line "
+                     "holds only numbers; expected a header line (or map columns by number)");
+  if (!first_is_data) m_header_line = m_line_no;
+
+  m_targets.assign(fields.size(), Target{ignored, Unit{}});
+  for (const auto& [qname, spec] : m_options.columns) {
+    const std::size_t q = quantity_index(qname);
+    std::size_t column = 0;
+    if (is_column_number(spec.source)) {
+      column = column_number(spec.source);
+      if (column > fields.size())
+        throw InputError(ErrorKind::missing_column, at(m_line_no, column, qname),
+                         "the column map reads " + qname + " from column " + spec.source +
+                             ", but this line has only " + std::to_string(fields.size()) +
+                             " columns");
+    } else {
+      for (std::size_t i = 0; i < fields.size(); ++i)
+        if (fields[i] == spec.source) {
+          column = i + 1;
+          break;
+        }
+      if (column == 0)
+        throw InputError(ErrorKind::missing_column, at(m_line_no, 0, qname),
+                         "the column map reads " + qname + " from a column named '" +
+                             spec.source + "', but the header line has no such column");
+    }
+    Target& target = m_targets[column - 1];
+    if (target.slot != ignored)
+      throw UsageError("column map: " + m_slots[target.slot].name + " and " + qname +
+                       " both read column " + std::to_string(column) + " of " + m_source);
+    std::string why;
+    const auto unit = parse_unit(spec.unit, q, why);
+    if (!unit) throw UsageError("column map item " + qname + ": " + why);
+    target.unit = *unit;
+    target.slot = m_slots.size();
+    Slot slot;
+    slot.quantity = q;
+    slot.column = column;
+    slot.name = first_is_data ? qname : std::string(fields[column - 1]);
+    m_slots.push_back(std::move(slot));
+  }
+}
+
+void TableReader::read_row(std::string_view line) {
+  FieldCursor cur(line);
+  std::string_view field;
+  std::size_t column = 0;
+  while (cur.next(field)) {
+    ++column;
+    if (column > m_targets.size()) break;
+    const Target& target = m_targets[column - 1];
+    if (target.slot == ignored) continue;
+    Slot& slot = m_slots[target.slot];
+    const auto value = parse_number(field);
+    if (!value)
+      throw InputError(ErrorKind::bad_number, at(m_line_no, column, slot.name),
+                       "expected a number, found '" + std::string(field.substr(0, 40)) +
+                           (field.size() > 40 ? "...'" : "'"));
+    if (!std::isfinite(*value))
+      throw InputError(ErrorKind::not_finite, at(m_line_no, column, slot.name),
+                       "expected a finite number, found '" + std::string(field.substr(0, 40)) +
+                           "'");
+    double v = *value;
+    if (target.unit.log10) v = std::pow(10.0, v);
+    v *= target.unit.factor;
+    if (!std::isfinite(v))
+      throw InputError(ErrorKind::not_finite, at(m_line_no, column, slot.name),
+                       "'" + std::string(field.substr(0, 40)) +
+                           "' overflows a double after unit conversion");
+    slot.values.push_back(v);
+  }
+  if (column != m_targets.size()) {
+    // Count the remaining fields for the message.
+    while (cur.next(field)) ++column;
+    const std::string ref = m_header_line != 0
+                                ? "the header (line " + std::to_string(m_header_line) + ")"
+                                : "the first row";
+    throw InputError(ErrorKind::bad_format, at(m_line_no),
+                     "expected " + std::to_string(m_targets.size()) + " fields as in " + ref +
+                         ", found " + std::to_string(column));
+  }
+  m_lines.push_back(m_line_no);
+}
+
+StellarModel TableReader::read() {
+  const bool mapped = !m_options.columns.empty();
+  if (mapped) m_options.validate();
+
+  std::string_view line;
+  for (std::size_t i = 0; i < m_options.skip_lines; ++i)
+    if (!next_line(line)) break;
+
+  // Upper bound on the rows, to reserve once.
+  const std::string_view rest = m_text.substr(std::min(m_pos, m_text.size()));
+  const std::size_t rows_estimate =
+      static_cast<std::size_t>(std::count(rest.begin(), rest.end(), '\n')) + 1;
+
+  bool set_up = false;
+  while (next_line(line)) {
+    switch (classify(line)) {
+    case LineType::blank: continue;
+    case LineType::comment:
+      if (auto kv = metadata_of(line)) m_metadata.push_back(std::move(*kv));
+      continue;
+    case LineType::content: break;
+    }
+    if (!set_up) {
+      set_up = true;
+      bool first_is_data = false;
+      if (mapped)
+        set_up_mapped(line, first_is_data);
+      else
+        set_up_native(line);
+      for (auto& s : m_slots) s.values.reserve(rows_estimate);
+      m_lines.reserve(rows_estimate);
+      if (!first_is_data) continue;
+    }
+    read_row(line);
+  }
+  if (!set_up)
+    throw InputError(ErrorKind::missing_column, at(0),
+                     mapped ? "no table rows found"
+                            : "no header line found (expected column names r m P rho Gamma1)");
+  return assemble();
+}
+
+StellarModel TableReader::assemble() {
+  StellarModel model;
+  model.source = m_source;
+  model.metadata = std::move(m_metadata);
+  model.line = std::move(m_lines);
+  std::size_t column_of[n_quantities] = {};
+  std::string name_of[n_quantities];
+  for (auto& s : m_slots) {
+    if (s.quantity == not_a_quantity) {
+      model.extra.emplace_back(s.name, std::move(s.values));
+    } else {
+      model.*(quantities[s.quantity].member) = std::move(s.values);
+      column_of[s.quantity] = s.column;
+      name_of[s.quantity] = s.name;
+    }
+  }
+  // Surface-first tables become centre-first (line numbers travel with their points).
+  if (model.r.size() >= 2 && model.r.front() > model.r.back()) {
+    for (const auto& q : quantities) std::reverse((model.*q.member).begin(), (model.*q.member).end());
+    for (auto& e : model.extra) std::reverse(e.second.begin(), e.second.end());
+    std::reverse(model.line.begin(), model.line.end());
+  }
+  try {
+    validate_model(model);
+  } catch (const InputError& e) {
+    // Add the column number and header name of the offending quantity.
+    const std::size_t q = quantity_index(e.where().column_name);
+    if (q == not_a_quantity || column_of[q] == 0) throw;
+    const std::string text = std::string(e.what()).substr(e.where().prefix().size());
+    Location loc = e.where();
+    loc.column = column_of[q];
+    loc.column_name = name_of[q];
+    throw InputError(e.kind(), loc, text);
+  }
+  return model;
+}
+
+} // namespace
+
+// --- Public functions ---------------------------------------------------------------------
+
+std::optional<double> parse_number(std::string_view token) noexcept {
+  if (token.empty()) return std::nullopt;
+  if (token[0] == '+') {
+    token.remove_prefix(1);
+    if (token.empty() || token[0] == '-' || token[0] == '+') return std::nullopt;
+  }
+  const char* first = token.data();
+  const char* last = first + token.size();
+  double value = 0.0;
+  auto res = std::from_chars(first, last, value);
+  if (res.ec == std::errc() && res.ptr == last) return value;
+  if (res.ec == std::errc::invalid_argument) return std::nullopt;
+
+  // Fortran exponent (1.0D+05) or a value out of the double range: retry on a copy.
+  const bool fortran = res.ptr != last && (*res.ptr == 'D' || *res.ptr == 'd');
+  if (res.ec == std::errc() && !fortran) return std::nullopt; // trailing junk
+  char small[64];
+  std::unique_ptr<char[]> big;
+  char* buf = small;
+  if (token.size() + 1 > sizeof small) {
+    big.reset(new (std::nothrow) char[token.size() + 1]);
+    if (!big) return std::nullopt;
+    buf = big.get();
+  }
+  std::memcpy(buf, first, token.size());
+  buf[token.size()] = '\0';
+  if (fortran) buf[res.ptr - first] = 'e';
+  const char* bend = buf + token.size();
+  res = std::from_chars(buf, bend, value);
+  if (res.ptr != bend || res.ec == std::errc::invalid_argument) return std::nullopt;
+  if (res.ec == std::errc::result_out_of_range) {
+    // strtod gives +-HUGE_VAL on overflow and 0 or a subnormal on underflow.
+    char* end = nullptr;
+    value = std::strtod(buf, &end);
+    if (end != bend) return std::nullopt;
+  }
+  return value;
+}
+
+void ReadOptions::validate() const {
+  bool seen[n_quantities] = {};
+  for (const auto& [qname, spec] : columns) {
+    const std::size_t q = quantity_index(qname);
+    if (q == not_a_quantity)
+      throw UsageError("column map: unknown quantity '" + qname + "'; expected one of " +
+                       quantity_list());
+    if (seen[q]) throw UsageError("column map: quantity " + qname + " mapped twice");
+    seen[q] = true;
+    if (trim(spec.source).empty())
+      throw UsageError("column map item " + qname + ": no column given");
+    if (is_column_number(spec.source) && column_number(spec.source) == 0)
+      throw UsageError("column map item " + qname + ": column numbers start at 1");
+    std::string why;
+    if (!parse_unit(spec.unit, q, why)) throw UsageError("column map item " + qname + ": " + why);
+  }
+  if (columns.empty()) return;
+  std::string missing;
+  for (std::size_t q = 0; q < n_quantities; ++q)
+    if (quantities[q].required && !seen[q])
+      missing += (missing.empty() ? "" : ", ") + std::string(quantities[q].name);
+  if (!missing.empty())
+    throw UsageError("column map: required quantities not mapped: " + missing +
+                     " (required: r m P rho Gamma1)");
+}
+
+ReadOptions parse_column_map(const std::string& spec) {
+  ReadOptions options;
+  if (trim(spec).empty()) return options;
+  std::string_view rest = spec;
+  while (true) {
+    const auto comma = rest.find(',');
+    const std::string_view raw = rest.substr(0, comma);
+    const std::string_view item = trim(raw);
+    const auto eq = item.find('=');
+    if (item.empty() || eq == std::string_view::npos || eq == 0 || eq + 1 == item.size())
+      throw UsageError("column map item '" + std::string(item) +
+                       "': expected QUANTITY=COLUMN[:UNIT], e.g. r=2:Rsun or P=pressure");
+    ColumnSpec col;
+    std::string_view source = trim(item.substr(eq + 1));
+    const auto colon = source.find(':');
+    if (colon != std::string_view::npos) {
+      col.unit = std::string(trim(source.substr(colon + 1)));
+      source = trim(source.substr(0, colon));
+      if (col.unit.empty())
+        throw UsageError("column map item '" + std::string(item) + "': empty unit after ':'");
+    }
+    col.source = std::string(source);
+    options.columns.emplace_back(std::string(trim(item.substr(0, eq))), std::move(col));
+    if (comma == std::string_view::npos) break;
+    rest.remove_prefix(comma + 1);
+  }
+  options.validate();
+  return options;
+}
+
+StellarModel parse_model(std::string_view text, const std::string& source_name,
+                         const ReadOptions& options) {
+  return TableReader(text, source_name, options).read();
+}
+
+StellarModel read_model(const std::string& path, const ReadOptions& options) {
+  Location loc;
+  loc.file = path;
+  std::FILE* f = std::fopen(path.c_str(), "rb");
+  if (!f)
+    throw InputError(ErrorKind::io, loc, std::string("cannot open: ") + std::strerror(errno));
+  std::unique_ptr<std::FILE, int (*)(std::FILE*)> guard(f, &std::fclose);
+  struct stat st {};
+  if (::fstat(::fileno(f), &st) != 0)
+    throw InputError(ErrorKind::io, loc, std::string("cannot read: ") + std::strerror(errno));
+  if (S_ISDIR(st.st_mode)) throw InputError(ErrorKind::io, loc, "cannot read: is a directory");
+  std::string text;
+  if (S_ISREG(st.st_mode) && st.st_size > 0) text.reserve(static_cast<std::size_t>(st.st_size));
+  char buf[1 << 16];
+  while (true) {
+    const std::size_t n = std::fread(buf, 1, sizeof buf, f);
+    text.append(buf, n);
+    if (n < sizeof buf) break;
+  }
+  if (std::ferror(f))
+    throw InputError(ErrorKind::io, loc, std::string("cannot read: ") + std::strerror(errno));
+  return parse_model(text, path, options);
+}
+
+} // namespace radmode

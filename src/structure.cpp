@@ -190,6 +190,11 @@ StructurePoint Structure::at(std::size_t interval, double t) const {
   const StellarModel& tb = m_table;
   StructurePoint p;
   // Endpoints exactly reproduce the table rows (no exp(log()) round-off there).
+  const double h = iv.r1 - iv.r0;
+  const auto m = eval(iv.m, t), P = eval(iv.P, t), rho = eval(iv.rho, t);
+  p.dm_dr = m.second / h;
+  p.dP_dr = P.second / h;
+  p.drho_dr = rho.second / h;
   if (t == 0.0 || t == 1.0) {
     const std::size_t row = t == 1.0 ? iv.row + 1 : iv.row;
     p.r = tb.r[row];
@@ -202,9 +207,9 @@ StructurePoint Structure::at(std::size_t interval, double t) const {
   }
   const double s = 1.0 - t;
   p.r = s * iv.r0 + t * iv.r1;
-  p.m = eval(iv.m, t).first;
-  p.P = eval(iv.P, t).first;
-  p.rho = eval(iv.rho, t).first;
+  p.m = m.first;
+  p.P = P.first;
+  p.rho = rho.first;
   p.gamma1 = s * iv.g0 + t * iv.g1;
   p.nabla_ad = s * iv.na0 + t * iv.na1;
   return p;

@@ -50,6 +50,10 @@ struct StructurePoint {
   double rho = 0;      ///< density [g cm^-3]
   double gamma1 = 0;   ///< first adiabatic exponent
   double nabla_ad = 0; ///< adiabatic gradient (0 when the model has none: see has_nabla_ad())
+  /// Derivatives of the interpolants above with respect to r (one-sided inside the interval
+  /// at its ends): consistent with P, m, rho, so an ODE using them solves the same
+  /// interpolated problem as the finite elements. [dyn cm^-3], [g cm^-1], [g cm^-4]
+  double dP_dr = 0, dm_dr = 0, drho_dr = 0;
 };
 
 class Structure {

@@ -149,9 +149,9 @@ LineType classify(std::string_view line) {
   return LineType::blank;
 }
 
+/// Metadata keys: any run of characters other than blanks, `=` and `#`.
 bool is_key_char(char c) {
-  return (c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') ||
-         c == '_' || c == '.' || c == '-';
+  return c != ' ' && c != '\t' && c != '\r' && c != '\v' && c != '\f' && c != '=' && c != '#';
 }
 
 /// `# key = value` -> (key, value); other comments -> nullopt.
@@ -409,7 +409,13 @@ StellarModel TableReader::read() {
     switch (classify(line)) {
     case LineType::blank: continue;
     case LineType::comment:
-      if (auto kv = metadata_of(line)) m_metadata.push_back(std::move(*kv));
+      if (auto kv = metadata_of(line)) {
+        if (kv->second.find('\r') != std::string::npos)
+          throw InputError(ErrorKind::bad_format, at(m_line_no),
+                           "metadata value of '" + kv->first +
+                               "' holds a carriage return; expected one line of text");
+        m_metadata.push_back(std::move(*kv));
+      }
       continue;
     case LineType::content: break;
     }

@@ -4,6 +4,7 @@
 
 #include "radmode/constants.hpp"
 #include "radmode/error.hpp"
+#include "radmode/generators.hpp"
 #include "support.hpp"
 
 #include <doctest/doctest.h>
@@ -122,6 +123,24 @@ TEST_CASE("native table: values, line numbers, metadata and extra columns") {
   CHECK(model.extra[0].first == "X");
   CHECK(model.extra[0].second == p.X);
   CHECK(model.has_centre());
+}
+
+TEST_CASE("metadata lines: key without blanks, '=' or '#'; other comments ignored") {
+  auto lines = good_lines();
+  lines[0] = "# mass(Msun) = 1.7 ";
+  lines.insert(lines.begin(), {"#x=5", "# Note: a = b", "# ==== banner ====", "  # key2 =  "});
+  lines.push_back("# trailer = after the rows");
+  const auto model = parse_model(join(lines), "meta.txt");
+  using KV = std::pair<std::string, std::string>;
+  const std::vector<KV> expected = {KV{"x", "5"}, KV{"key2", ""}, KV{"mass(Msun)", "1.7"},
+                                    KV{"trailer", "after the rows"}};
+  CHECK(model.metadata == expected);
+
+  // A carriage return inside a value cannot be written back: refused with its line.
+  lines.back() = "# trailer = a\rb";
+  const auto e = parse_error(join(lines));
+  CHECK(e.kind() == ErrorKind::bad_format);
+  CHECK(contains(e.what(), "bad.txt:19: "));
 }
 
 TEST_CASE("surface-first table gives the same centre-first model") {
@@ -424,4 +443,27 @@ TEST_CASE("parse_number accepts the usual number forms and nothing else") {
   CHECK(std::isnan(*parse_number("nan")));
   for (const char* bad : {"", "+", "+-1", "1e", "1.2.3", "abc", "1,5", "D5", "1D", "0x10", "1e5x"})
     CHECK_MESSAGE(!parse_number(bad), bad);
+}
+
+TEST_CASE("write then read gives back the same model") {
+  SUBCASE("a read table with metadata, optional and extra columns") {
+    const auto p = make_points();
+    const auto a = parse_model(native_table(p), "a.txt");
+    const auto b = parse_model(format_model(a), "b.txt");
+    check_same(a, b);
+    CHECK(a.extra == b.extra);
+    CHECK(a.metadata == b.metadata);
+  }
+  SUBCASE("generated models, through a file") {
+    // The Eddington standard model has T, nabla_ad and u; the polytrope ends at rho = P = 0.
+    test::TempDir dir;
+    for (const auto& model : {make_polytrope(3.0), make_standard_model(), make_uniform()}) {
+      const auto path = dir.file("model.txt");
+      write_model(model, path);
+      const auto back = read_model(path);
+      check_same(model, back);
+      CHECK(model.metadata == back.metadata);
+      CHECK(back.source == path);
+    }
+  }
 }

@@ -339,9 +339,10 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
   if (!std::isfinite(d.t_sound_s))
     warn(d, "sound_time_infinite",
          "the sound speed vanishes on two adjacent points; the sound-crossing time is infinite");
-  if (d.gamma1_pressure_weighted < four_thirds)
+  // (a relative 1e-12 below 4/3 is rounding in the averages of a Gamma1 = 4/3 table)
+  if (d.gamma1_pressure_weighted < four_thirds * (1.0 - 1e-12))
     warn(d, "gamma1_mean_below_4_3",
-         "pressure-weighted <Gamma1> = " + num(d.gamma1_pressure_weighted) +
+         "pressure-weighted <Gamma1> = " + detail::sig(d.gamma1_pressure_weighted, 7) +
              " < 4/3: sufficient for dynamical instability");
   if (d.compactness > options.compactness_warn)
     warn(d, "compactness_high",

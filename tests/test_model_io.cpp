@@ -197,8 +197,8 @@ TEST_CASE("Windows line ends are accepted") {
 
 TEST_CASE("an inner point at r > 0 is kept, a repeated radius is accepted") {
   auto lines = good_lines();
-  lines[2] = "0.5 0.1 100 1.5 1.6";   // first point off-centre
-  lines[7] = "4 16 95 1.2 1.6";        // same r as the previous row: a discontinuity
+  lines[2] = "0.5 0.1 100 1.5 1.6"; // first point off-centre
+  lines[7] = "4 16 95 1.2 1.6";     // same r as the previous row: a discontinuity
   const auto model = parse_model(join(lines), "d.txt");
   CHECK(model.r[0] == 0.5);
   CHECK(!model.has_centre());
@@ -226,8 +226,8 @@ TEST_CASE("foreign table through a column map gives the same model as the native
                   "zone logP radius mass X density G1 lum\n";
   for (std::size_t i = p.r_sun.size(); i-- > 0;)
     t += std::to_string(i + 1) + " " + num(p.logP[i]) + " " + num(p.r_sun[i]) + " " +
-         num(p.m_sun[i]) + " " + num(p.X[i]) + " " + num(p.rho[i]) + " " + num(p.gamma1[i]) +
-         " " + num(p.L_sun[i]) + "\n";
+         num(p.m_sun[i]) + " " + num(p.X[i]) + " " + num(p.rho[i]) + " " + num(p.gamma1[i]) + " " +
+         num(p.L_sun[i]) + "\n";
 
   SUBCASE("by column number") {
     auto opt = parse_column_map("r=3:Rsun, m=4:Msun, P=2:log10, rho=6, Gamma1=7, L=8:Lsun");

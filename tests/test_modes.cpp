@@ -7,6 +7,8 @@
 #include "radmode/error.hpp"
 #include "radmode/json.hpp"
 
+#include "analytic_models.hpp"
+
 #include <doctest/doctest.h>
 
 #include <algorithm>
@@ -24,23 +26,14 @@ namespace {
 constexpr double kMass = 2.0e33;  // g (an invented star)
 constexpr double kRadius = 3.0e11; // cm
 
-/// Uniform-density sphere, P = (2 pi/3) G rho^2 R^2 (1 - x^2) (physics.md section 6), on a
-/// non-uniform mesh (denser towards the surface) so the node derivative is really tested.
+/// Uniform-density sphere (tests/support/analytic_models.hpp) on a non-uniform mesh, denser
+/// towards the surface (x = sin(pi t/2)), so the node derivative is really tested.
 StellarModel uniform_sphere(std::size_t n, double gamma1) {
-  StellarModel model;
-  const double rho = 3.0 * kMass / (4.0 * pi * kRadius * kRadius * kRadius);
-  for (std::size_t i = 0; i < n; ++i) {
-    const double t = static_cast<double>(i) / static_cast<double>(n - 1);
-    const double x = std::sin(0.5 * pi * t); // node spacing shrinks towards x = 1
-    model.r.push_back(x * kRadius);
-    model.m.push_back(kMass * x * x * x);
-    model.rho.push_back(rho);
-    model.P.push_back(2.0 * pi / 3.0 * G * rho * rho * kRadius * kRadius * (1.0 - x * x));
-    model.gamma1.push_back(gamma1);
-  }
-  model.P.back() = 0.0;
-  model.source = "analytic uniform sphere";
-  return model;
+  std::vector<double> x;
+  for (std::size_t i = 0; i < n; ++i)
+    x.push_back(std::sin(0.5 * pi * static_cast<double>(i) / static_cast<double>(n - 1)));
+  x.back() = 1.0;
+  return test::uniform_sphere(x, gamma1, kMass, kRadius);
 }
 
 double unit_omega2() { return G * kMass / (kRadius * kRadius * kRadius); }

@@ -12,6 +12,7 @@
 #include "registry.hpp"
 
 #include "radmode/constants.hpp"
+#include "radmode/diagnostics.hpp"
 #include "radmode/eigensolve.hpp"
 #include "radmode/error.hpp"
 #include "radmode/json.hpp"
@@ -142,6 +143,7 @@ struct RunResult {
   StellarModel model;
   SolveOptions solve;
   std::optional<Window> window;
+  ModelDiagnostics diagnostics;
   ModeSet set;
   ModeReport report;
   std::vector<VerifyResult> verify;
@@ -248,6 +250,11 @@ std::string text_report(const ModesCommandOptions& o, const RunResult& run) {
   for (const PeriodRatio& p : run.report.period_ratios)
     s << "  " << cell(p.label + "/F", 6, true) << "  " << num(p.ratio, "%.6f") << '\n';
 
+  // Model warnings (diagnostics.hpp, the same as radmode inspect).
+  s << "\nModel warnings\n";
+  if (run.diagnostics.warnings.empty()) s << "  none\n";
+  for (const DiagnosticWarning& w : run.diagnostics.warnings) s << "  " << w.message << '\n';
+
   // Shooting check.
   if (o.verify) {
     s << "\nShooting check (independent integration of the wave equation)\n";
@@ -325,6 +332,7 @@ std::string json_report(const ModesCommandOptions& o, const RunResult& run) {
   }
   j.end_array();
   j.field("period_ratio_note", run.report.period_ratio_note);
+  write_warnings_json(j, run.diagnostics.warnings);
   if (o.verify) {
     j.key("verify").begin_array();
     for (const VerifyResult& v : run.verify) {
@@ -380,6 +388,7 @@ int run_modes(const ModesCommandOptions& o, bool count_given) {
   run.solve.validate();
 
   run.model = load_model(o.model_path, o.input);
+  run.diagnostics = diagnose(run.model);
   run.set = solve_modes(run.model, run.solve);
   run.report = make_mode_report(run.model, run.set, run.solve);
 

@@ -38,12 +38,16 @@
 //   radius form  dP/dr                 against -G m rho / r^2,
 //   mass form    dP/d(m^(2/3))         against -3 G m^(4/3) / (8 pi r^4)   (= same relation),
 // and the smaller of the two is kept at each point. Each form has its own failure mode that
-// is not a property of the model: the radius form fails next to a P = 0 surface where P has a
-// power-law zero (relative error O(1) in the last cells of a polytrope), the mass form fails
-// where neighbouring m values are not resolved by the table's digits (outer envelope). A
-// genuine departure from equilibrium shows in both. "Interior" = every point except the
-// innermost and the outermost, skipping points with r = 0 or m = 0 and points with
-// P < hse_pressure_floor * max(P) (rounding dominates the relative residual there).
+// is not a property of the model, and is used only where its stencil resolves the profile:
+//   radius form: where P changes by less than a factor 2 across the stencil (next to a P = 0
+//     surface P has a power-law zero and the difference has an O(1) relative error);
+//   mass form: where both mass differences are >= 1e-6 m (in the outer envelope m is
+//     constant to the table's digits, and a generator integrated to ~1e-9 is not exact).
+// A genuine departure from equilibrium shows in both forms. "Interior" = every point except
+// the innermost and the outermost, skipping points with r = 0 or m = 0, points with
+// P < hse_pressure_floor * max(P), and points where neither form is usable (all counted in
+// hse_points_skipped). Tables written with few digits have a floor of their own where P
+// varies little between points (near the centre of a finely meshed model).
 //
 // Mass consistency: |(m(R) - m(r0)) - int_r0^R 4 pi r^2 rho dr| / (m(R) - m(r0)), trapezoid.
 
@@ -51,6 +55,7 @@
 #include "radmode/model.hpp"
 
 #include <cstddef>
+#include <ostream>
 #include <string>
 #include <vector>
 
@@ -143,6 +148,10 @@ const char* pn_energy_name(PnEnergy e) noexcept;
 /// Writes the diagnostics as key/value pairs into the JSON object currently open in `json`
 /// (snake_case keys, units in the names; see docs/inspect.md). Does not write "warnings".
 void write_diagnostics_json(JsonWriter& json, const ModelDiagnostics& d);
+
+/// Writes the readable diagnostics block (model, time scales, checks, Gamma1 criterion,
+/// relativity, warnings), every quantity with its units; ends with a newline.
+void write_diagnostics_text(std::ostream& out, const ModelDiagnostics& d);
 
 /// Writes "warnings": [{"code": ..., "message": ...}, ...] into the open object.
 void write_warnings_json(JsonWriter& json, const std::vector<DiagnosticWarning>& warnings);

@@ -9,12 +9,17 @@ with /usr/bin/python3). The file format is described in docs/modes.md.
 """
 import argparse
 import csv
+import re
 import sys
+
+# "# F: dP_P at R = -19.4; the regular surface condition gives -(4 + sigma^2) xi(R) = -13.3"
+SURFACE_NOTE = re.compile(r"^#\s*(\S+): dP_P at R = (\S+); .* = (\S+)$")
 
 
 def read_profiles(path):
-    """Returns (metadata dict, {(order, label): {column: [floats]}}) in file order."""
-    meta = {}
+    """Returns (metadata dict, {(order, label): {column: [floats]}}) in file order; metadata
+    "surface" maps a mode label to the surface value of delta P/P its surface condition gives."""
+    meta = {"surface": {}}
     modes = {}
     header = None
     with open(path, newline="") as f:
@@ -23,6 +28,10 @@ def read_profiles(path):
             if not line:
                 continue
             if line.startswith("#"):
+                note = SURFACE_NOTE.match(line)
+                if note:
+                    meta["surface"][note.group(1)] = float(note.group(3))
+                    continue
                 body = line[1:].strip()
                 if "=" in body:
                     key, _, value = body.partition("=")
@@ -82,12 +91,18 @@ def main(argv=None):
     for (order, label), cols in list(modes.items())[: args.max_modes]:
         x = cols["r_over_R"]
         axes[0].plot(x, cols["xi"], label=label)
-        axes[1].plot(x, cols["dP_P"], label=label)
+        line, = axes[1].plot(x, cols["dP_P"], label=label)
+        if label in meta["surface"]:
+            axes[1].plot([1.0], [meta["surface"][label]], "o", mfc="none",
+                         color=line.get_color())
         w = cols["weight"]
         scale = max(abs(v) for v in w) or 1.0
         axes[2].plot(x, [v / scale for v in w], label=label)
     axes[0].set_ylabel(r"$\xi = \delta r / r$  ($\xi(R)=1$)")
     axes[1].set_ylabel(r"$\delta P / P$")
+    if any(meta["surface"].values()):
+        axes[1].set_title(r"open circles: $-(4+\sigma^2)\,\xi(R)$ from the surface condition",
+                          fontsize="small")
     axes[2].set_ylabel("weight function\n(scaled to max |w| = 1)")
     axes[2].set_xlabel("r / R")
     for ax in axes:

@@ -23,6 +23,7 @@
 
 #include <cmath>
 #include <cstdio>
+#include <iomanip>
 #include <iostream>
 #include <memory>
 #include <optional>
@@ -121,15 +122,18 @@ const char* status_name(SolveStatus s) {
   return "unknown";
 }
 
-/// printf-style formatting of one number; "-" for an absent value.
-std::string num(double x, const char* format = "%.6g") {
+/// One number as text with `digits` significant digits ('g'), or `digits` after the point in
+/// scientific ('e') or fixed ('f') notation; "-" for an absent or non-finite value.
+std::string num(double x, int digits = 6, char style = 'g') {
   if (!std::isfinite(x)) return "-";
-  char buf[64];
-  std::snprintf(buf, sizeof buf, format, x);
-  return buf;
+  std::ostringstream s;
+  if (style == 'e') s << std::scientific;
+  if (style == 'f') s << std::fixed;
+  s << std::setprecision(digits) << x;
+  return s.str();
 }
-std::string num(const std::optional<double>& x, const char* format = "%.6g") {
-  return x ? num(*x, format) : std::string("-");
+std::string num(const std::optional<double>& x, int digits = 6, char style = 'g') {
+  return x ? num(*x, digits, style) : std::string("-");
 }
 
 /// Pads or right-aligns a cell to `width` characters.
@@ -158,11 +162,11 @@ std::string text_report(const ModesCommandOptions& o, const RunResult& run) {
   s << "radmode " << version << " -- radial adiabatic modes\n\n";
   s << "model        " << o.model_path << '\n';
   for (const auto& [key, value] : run.model.metadata) s << "  " << key << " = " << value << '\n';
-  s << "mass         " << num(sc.mass_g / constants::M_sun, "%.6g") << " M_sun  ("
-    << num(sc.mass_g, "%.6e") << " g)\n";
-  s << "radius       " << num(sc.radius_cm / constants::R_sun, "%.6g") << " R_sun  ("
-    << num(sc.radius_cm, "%.6e") << " cm)\n";
-  s << "t_dyn        " << num(sc.t_dyn_s, "%.6g") << " s = " << num(sc.t_dyn_s / 3600.0, "%.4g")
+  s << "mass         " << num(sc.mass_g / constants::M_sun, 6, 'g') << " M_sun  ("
+    << num(sc.mass_g, 6, 'e') << " g)\n";
+  s << "radius       " << num(sc.radius_cm / constants::R_sun, 6, 'g') << " R_sun  ("
+    << num(sc.radius_cm, 6, 'e') << " cm)\n";
+  s << "t_dyn        " << num(sc.t_dyn_s, 6, 'g') << " s = " << num(sc.t_dyn_s / 3600.0, 4, 'g')
     << " h   (G rho_mean)^(-1/2)\n";
   s << "points       " << run.model.size() << " in the table, " << run.set.node_r.size()
     << " finite-element nodes\n";
@@ -196,16 +200,16 @@ std::string text_report(const ModesCommandOptions& o, const RunResult& run) {
           q.label,
           std::to_string(q.order),
           std::to_string(q.nodes),
-          num(q.sigma2, "%.7g"),
-          num(q.omega2_s2, "%.5e"),
-          q.stable ? num(q.period_d, "%.7g") : std::string("growing"),
-          num(q.period_h, "%.6g"),
-          num(q.frequency_uHz, "%.6g"),
-          num(q.frequency_cd, "%.6g"),
-          num(q.Q_d, "%.5f"),
-          num(q.omega_t_dyn, "%.5g"),
-          num(q.inertia, "%.4e"),
-          num(q.error_estimate_rel, "%.1e"),
+          num(q.sigma2, 7, 'g'),
+          num(q.omega2_s2, 5, 'e'),
+          q.stable ? num(q.period_d, 7, 'g') : std::string("growing"),
+          num(q.period_h, 6, 'g'),
+          num(q.frequency_uHz, 6, 'g'),
+          num(q.frequency_cd, 6, 'g'),
+          num(q.Q_d, 5, 'f'),
+          num(q.omega_t_dyn, 5, 'g'),
+          num(q.inertia, 4, 'e'),
+          num(q.error_estimate_rel, 1, 'e'),
           q.order_agrees ? "agree" : "DISAGREE",
           q.trusted ? "yes" : "NO"};
       for (std::size_t i = 0; i < heads.size(); ++i)
@@ -223,9 +227,9 @@ std::string text_report(const ModesCommandOptions& o, const RunResult& run) {
       << cell("e-fold[s]", 12) << "  " << cell("e-fold[t_dyn]", 13) << '\n';
     for (const ModeQuantities& q : modes)
       if (!q.stable)
-        s << cell(q.label, 5, true) << "  " << cell(num(q.growth_rate_s, "%.5e"), 12) << "  "
-          << cell(num(q.growth_time_s, "%.5e"), 12) << "  "
-          << cell(num(q.growth_time_t_dyn, "%.5g"), 13) << '\n';
+        s << cell(q.label, 5, true) << "  " << cell(num(q.growth_rate_s, 5, 'e'), 12) << "  "
+          << cell(num(q.growth_time_s, 5, 'e'), 12) << "  "
+          << cell(num(q.growth_time_t_dyn, 5, 'g'), 13) << '\n';
   }
 
   // Flags in plain words.
@@ -248,7 +252,7 @@ std::string text_report(const ModesCommandOptions& o, const RunResult& run) {
   if (run.report.period_ratios.empty())
     s << "  " << run.report.period_ratio_note << '\n';
   for (const PeriodRatio& p : run.report.period_ratios)
-    s << "  " << cell(p.label + "/F", 6, true) << "  " << num(p.ratio, "%.6f") << '\n';
+    s << "  " << cell(p.label + "/F", 6, true) << "  " << num(p.ratio, 6, 'f') << '\n';
 
   // Model warnings (diagnostics.hpp, the same as radmode inspect).
   s << "\nModel warnings\n";
@@ -262,9 +266,9 @@ std::string text_report(const ModesCommandOptions& o, const RunResult& run) {
       << cell("omega^2 shoot", 13) << "  " << cell("rel.diff", 9) << "  "
       << cell("nodes", 5) << "  result\n";
     for (const VerifyResult& v : run.verify) {
-      s << cell(mode_label(v.order), 5, true) << "  " << cell(num(v.omega2_fe, "%.6e"), 13)
-        << "  " << cell(v.shoot.converged ? num(v.omega2_shoot, "%.6e") : "-", 13) << "  "
-        << cell(v.shoot.converged ? num(v.rel_diff, "%.1e") : "-", 9) << "  "
+      s << cell(mode_label(v.order), 5, true) << "  " << cell(num(v.omega2_fe, 6, 'e'), 13)
+        << "  " << cell(v.shoot.converged ? num(v.omega2_shoot, 6, 'e') : "-", 13) << "  "
+        << cell(v.shoot.converged ? num(v.rel_diff, 1, 'e') : "-", 9) << "  "
         << cell(std::to_string(v.shoot.nodes), 5) << "  "
         << (v.agrees ? "agree" : "DISAGREE");
       if (!v.agrees && !v.shoot.message.empty()) s << " (" << v.shoot.message << ")";

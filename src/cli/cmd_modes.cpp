@@ -19,8 +19,10 @@
 #include "radmode/modes.hpp"
 #include "radmode/output.hpp"
 #include "radmode/shooting.hpp"
+#include "radmode/stability.hpp"
 #include "radmode/version.hpp"
 
+#include <algorithm>
 #include <cmath>
 #include <cstdio>
 #include <iomanip>
@@ -150,6 +152,8 @@ struct RunResult {
   ModelDiagnostics diagnostics;
   ModeSet set;
   ModeReport report;
+  StabilityVerdict verdict;
+  bool verdict_from_extra_solve = false; ///< the fundamental was solved for separately
   std::vector<VerifyResult> verify;
   bool verify_failed = false;
 };
@@ -254,6 +258,13 @@ std::string text_report(const ModesCommandOptions& o, const RunResult& run) {
   for (const PeriodRatio& p : run.report.period_ratios)
     s << "  " << cell(p.label + "/F", 6, true) << "  " << num(p.ratio, 6, 'f') << '\n';
 
+  // Stability verdict (stability.hpp, the same block as radmode inspect).
+  s << "\nStability verdict";
+  if (run.verdict_from_extra_solve)
+    s << " (the fundamental is outside the window; it was solved for separately)";
+  s << '\n';
+  write_verdict_text(s, run.verdict);
+
   // Model warnings (diagnostics.hpp, the same as radmode inspect).
   s << "\nModel warnings\n";
   if (run.diagnostics.warnings.empty()) s << "  none\n";
@@ -336,6 +347,8 @@ std::string json_report(const ModesCommandOptions& o, const RunResult& run) {
   }
   j.end_array();
   j.field("period_ratio_note", run.report.period_ratio_note);
+  write_verdict_json(j, run.verdict);
+  j.field("verdict_from_extra_solve", run.verdict_from_extra_solve);
   write_warnings_json(j, run.diagnostics.warnings);
   if (o.verify) {
     j.key("verify").begin_array();
@@ -396,6 +409,22 @@ int run_modes(const ModesCommandOptions& o, bool count_given) {
   run.set = solve_modes(run.model, run.solve);
   run.report = make_mode_report(run.model, run.set, run.solve);
 
+  // The verdict needs the fundamental; a window may leave it out: solve for it alone then.
+  const bool has_fundamental =
+      std::any_of(run.report.modes.begin(), run.report.modes.end(),
+                  [](const ModeQuantities& q) { return q.order == 0; });
+  if (has_fundamental || run.set.status == SolveStatus::not_converged) {
+    run.verdict = assess_stability(run.diagnostics, run.report);
+  } else {
+    SolveOptions fundamental = run.solve;
+    fundamental.count = 1;
+    fundamental.window_lo_omega2.reset();
+    fundamental.window_hi_omega2.reset();
+    const ModeSet f = solve_modes(run.model, fundamental);
+    run.verdict = assess_stability(run.diagnostics, make_mode_report(run.model, f, fundamental));
+    run.verdict_from_extra_solve = true;
+  }
+
   if (o.verify) {
     ShootOptions shoot;
     shoot.surface = run.solve.surface;
@@ -424,9 +453,7 @@ int run_modes(const ModesCommandOptions& o, bool count_given) {
     throw Error(ErrorKind::numerical,
                 "modes: --verify: shooting disagrees with the finite-element result for at least "
                 "one mode (see the shooting check in the report)");
-  if (o.fail_if_unstable && !run.report.modes.empty() && !run.report.modes.front().stable &&
-      run.report.modes.front().order == 0)
-    return exit_unstable;
+  if (o.fail_if_unstable && run.verdict.unstable()) return exit_unstable;
   return 0;
 }
 

@@ -259,11 +259,11 @@ std::string text_report(const ModesCommandOptions& o, const RunResult& run) {
     s << "  " << cell(p.label + "/F", 6, true) << "  " << num(p.ratio, 6, 'f') << '\n';
 
   // Stability verdict (stability.hpp, the same block as radmode inspect).
-  s << "\nStability verdict";
-  if (run.verdict_from_extra_solve)
-    s << " (the fundamental is outside the window; it was solved for separately)";
   s << '\n';
   write_verdict_text(s, run.verdict);
+  if (run.verdict_from_extra_solve)
+    s << "  (the fundamental is outside the window: it was solved for separately for this "
+         "verdict)\n";
 
   // Model warnings (diagnostics.hpp, the same as radmode inspect).
   s << "\nModel warnings\n";

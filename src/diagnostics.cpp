@@ -44,15 +44,26 @@ std::size_t distinct_after(const std::vector<double>& x, std::size_t i) {
   return npos;
 }
 
-/// Relative HSE residual at point i with the derivative of y with respect to x over the
-/// nearest distinct neighbours a < i < b, against `target` (the exact dy/dx in equilibrium,
-/// < 0). NaN when there is no such stencil or `resolved(a, b)` says the stencil cannot resolve
-/// the profile.
-template <class Resolved>
+/// Smallest change of P (and, for the mass form, of m) relative to the value at the point that
+/// the HSE stencil must span on each side: a table printed with 6 significant digits still
+/// gives such differences to 1 %.
+constexpr double hse_min_relative_change = 1e-4;
+
+/// Relative HSE residual at point i with the derivative of y (the pressure) with respect to x
+/// over neighbours a < i < b, against `target` (the exact dy/dx in equilibrium, < 0). The
+/// neighbours start as the nearest points with distinct x and move outwards while
+/// `too_close(j)` says the difference between points j and i is not resolved by the table's
+/// digits (near the centre of a finely meshed model P hardly changes between points; in the
+/// envelope m does not). NaN when there is no such stencil or `resolved(a, b)` says the
+/// stencil cannot resolve the profile.
+template <class TooClose, class Resolved>
 double residual_form(const std::vector<double>& x, const std::vector<double>& y, std::size_t i,
-                     double target, Resolved resolved) {
-  const std::size_t a = distinct_before(x, i), b = distinct_after(x, i);
-  if (a == npos || b == npos || !(target < 0.0) || !resolved(a, b))
+                     double target, TooClose too_close, Resolved resolved) {
+  std::size_t a = distinct_before(x, i), b = distinct_after(x, i);
+  if (a == npos || b == npos || !(target < 0.0)) return std::numeric_limits<double>::quiet_NaN();
+  while (too_close(a) && a > 0) --a;
+  while (too_close(b) && b + 1 < y.size()) ++b;
+  if (too_close(a) || too_close(b) || x[a] == x[i] || x[b] == x[i] || !resolved(a, b))
     return std::numeric_limits<double>::quiet_NaN();
   const double d = derivative3(x[a], x[i], x[b], y[a], y[i], y[b]);
   return std::abs(d - target) / std::abs(target);
@@ -252,16 +263,19 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
       const double g_rho = G * m[i] * rho[i] / (r[i] * r[i]);
       const double target_s = -3.0 * G * std::cbrt(std::pow(m[i], 4)) /
                               (8.0 * pi * std::pow(r[i], 4));
+      const double eps = hse_min_relative_change;
+      auto p_too_close = [&](std::size_t j) { return std::abs(P[j] - P[i]) < eps * P[i]; };
       // Radius form: only where P changes by less than a factor 2 across the stencil (next to
       // a power-law zero of P the three-point difference has an O(1) error).
-      const double by_r = residual_form(r, P, i, -g_rho, [&](std::size_t a, std::size_t b) {
-        return std::min(P[a], P[b]) >= 0.5 * std::max(P[a], P[b]);
-      });
-      // Mass form: only where the mass differences are resolved (>= 1e-6 m: a table written
-      // with 8 digits, or integrated to 1e-9, still gives them to 1 %).
-      const double by_m = residual_form(s, P, i, target_s, [&](std::size_t a, std::size_t b) {
-        return m[i] - m[a] >= 1e-6 * m[i] && m[b] - m[i] >= 1e-6 * m[i];
-      });
+      const double by_r = residual_form(r, P, i, -g_rho, p_too_close,
+                                        [&](std::size_t a, std::size_t b) {
+                                          return std::min(P[a], P[b]) >= 0.5 * std::max(P[a], P[b]);
+                                        });
+      // Mass form: the mass differences must be resolved as well.
+      const double by_m = residual_form(
+          s, P, i, target_s,
+          [&](std::size_t j) { return p_too_close(j) || std::abs(m[j] - m[i]) < eps * m[i]; },
+          [](std::size_t, std::size_t) { return true; });
       double res;
       if (std::isnan(by_r) && std::isnan(by_m)) {
         ++d.hse_points_skipped;
@@ -339,9 +353,10 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
   if (!std::isfinite(d.t_sound_s))
     warn(d, "sound_time_infinite",
          "the sound speed vanishes on two adjacent points; the sound-crossing time is infinite");
-  if (d.gamma1_pressure_weighted < four_thirds)
+  // (a relative 1e-12 below 4/3 is rounding in the averages of a Gamma1 = 4/3 table)
+  if (d.gamma1_pressure_weighted < four_thirds * (1.0 - 1e-12))
     warn(d, "gamma1_mean_below_4_3",
-         "pressure-weighted <Gamma1> = " + num(d.gamma1_pressure_weighted) +
+         "pressure-weighted <Gamma1> = " + detail::sig(d.gamma1_pressure_weighted, 7) +
              " < 4/3: sufficient for dynamical instability");
   if (d.compactness > options.compactness_warn)
     warn(d, "compactness_high",

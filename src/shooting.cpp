@@ -458,12 +458,8 @@ ShootingProblem shooting_problem(const StellarModel& model, const ShootOptions& 
       return c;
     }
     c.V = constants::G * p.m * p.rho / (r * p.P);
-    // -dlnP/dlnr of the interpolation: log-linear P has constant dlnP/dr in the interval;
-    // linear P (an end at P = 0) has dP/dr constant.
-    const StructurePoint a = structure->at(piece, 0.0), b = structure->at(piece, 1.0);
-    const double dlnP_dr = (a.P > 0.0 && b.P > 0.0) ? std::log(b.P / a.P) / (r1_piece - r0)
-                                                    : (b.P - a.P) / ((r1_piece - r0) * p.P);
-    c.Vp = -r * dlnP_dr;
+    // -dlnP/dlnr of the structure's own interpolant of P (structure.hpp).
+    c.Vp = -r * p.dP_dr / p.P;
     c.x3_over_q = x * x * x * M / p.m;
     return c;
   };

@@ -72,6 +72,9 @@ void StabilityOptions::validate() const {
   if (!(marginal_sigma2 >= 0.0 && marginal_sigma2 < 1.0))
     throw UsageError("stability option marginal_sigma2 = " + sig(marginal_sigma2) +
                      ": expected a number in [0, 1)");
+  if (!(error_margin >= 1.0 && error_margin <= 100.0))
+    throw UsageError("stability option error_margin = " + sig(error_margin) +
+                     ": expected a number in [1, 100]");
   if (!(weight_fraction > 0.0 && weight_fraction < 1.0))
     throw UsageError("stability option weight_fraction = " + sig(weight_fraction) +
                      ": expected a number in (0, 1)");
@@ -111,7 +114,8 @@ StabilityVerdict assess_stability(const ModelDiagnostics& d, const ModeReport& r
     v.omega2_error_s2 = q.error_estimate_s2;
     v.fundamental_trusted = q.trusted;
     v.fundamental_flag = q.flag;
-    v.marginal_threshold_s2 = std::max(q.error_estimate_s2, options.marginal_sigma2 * unit_omega2);
+    v.marginal_threshold_s2 = std::max(options.error_margin * q.error_estimate_s2,
+                                       options.marginal_sigma2 * unit_omega2);
     const std::string value = "omega0^2 = " + sig(q.omega2_s2) + " s^-2 (sigma0^2 = " +
                               sig(q.sigma2) + ")";
     if (std::abs(q.omega2_s2) <= v.marginal_threshold_s2) {
@@ -213,7 +217,7 @@ StabilityVerdict assess_stability(const ModelDiagnostics& d, const ModeReport& r
       v.notes.push_back("sigma0^2 = " + sig(v.sigma2_fundamental, 6) +
                         " exceeds the homologous upper bound sigma_hom^2 = " +
                         sig(d.sigma2_homologous, 6) + ": check the model and the solution");
-    if (excess < 0.0 && v.newtonian == Verdict::stable)
+    if (excess < -1e-12 && v.newtonian == Verdict::stable)
       v.notes.push_back("<Gamma1> < 4/3 (sufficient for instability) but the fundamental is "
                         "stable: check the model and the solution");
   }

@@ -4,13 +4,17 @@
 // diagnostics (diagnostics.hpp) as supporting evidence.
 //
 // Newtonian verdict (exact test: unstable iff omega0^2 < 0):
-//   marginal  when |omega0^2| <= max(error estimate of omega0^2, marginal_sigma2 * G M / R^3),
+//   marginal  when |omega0^2| <= max(error_margin * error estimate of omega0^2,
+//                                    marginal_sigma2 * G M / R^3),
 //   unstable  when omega0^2 < 0 otherwise,
 //   stable    when omega0^2 > 0 otherwise,
 //   undetermined when the ModeSet holds no mode of order 0 (solver failure): never guessed.
-// The floor marginal_sigma2 (default 1e-6, i.e. an e-folding or oscillation time of 1000 t_K)
-// absorbs the discretization of an exactly marginal model (Gamma1 = 4/3 gives omega0^2 = 0),
-// whose computed value is a small number of either sign.
+// An exactly marginal model (Gamma1 = 4/3 gives omega0^2 = 0) comes out of the solver as a
+// small number of either sign, of the size of its error estimate: the estimate is an
+// asymptotic estimate, not a bound (for Gamma1 = 4/3 polytropes the computed |omega0^2| is
+// within 1 % of the estimate on either side), hence error_margin = 2 by default. The floor
+// marginal_sigma2 (default 1e-6: growth or oscillation slower than 1000 t_K) covers a solution
+// whose error estimate is itself tiny.
 //
 // Post-Newtonian verdict (Chandrasekhar 1964, first order in G M/(R c^2)):
 //   unstable  when <Gamma1> - 4/3 < K * 2GM/(R c^2) (diagnostics.hpp), or when the Newtonian
@@ -46,6 +50,7 @@ const char* verdict_name(Verdict v) noexcept;
 
 struct StabilityOptions {
   double marginal_sigma2 = 1e-6; ///< floor of the marginal band in G M / R^3 units, [0, 1)
+  double error_margin = 2.0;     ///< band = this times the error estimate of omega0^2, [1, 100]
   double weight_fraction = 0.9;  ///< share of a weight the reported ranges hold, (0, 1)
 
   /// Throws UsageError naming the option, its value and the allowed range.
@@ -83,7 +88,7 @@ struct StabilityVerdict {
   double omega2_fundamental_s2 = 0;
   double sigma2_fundamental = 0;
   double omega2_error_s2 = 0;       ///< error estimate of omega0^2 [s^-2]
-  double marginal_threshold_s2 = 0; ///< max(error, floor G M/R^3) [s^-2]
+  double marginal_threshold_s2 = 0; ///< max(error_margin error, floor G M/R^3) [s^-2]
   bool fundamental_trusted = false;
   std::string fundamental_flag;     ///< solver's reason when not trusted
 

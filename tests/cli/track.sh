@@ -124,14 +124,21 @@ sphere "$tmp/big.txt" 1.5 0 4000
 for i in $(seq 1 20000); do echo "../big.txt"; done > "$tmp/models/long.txt"
 "$radmode" track --list "$tmp/models/long.txt" --count 5 --jobs 2 -o "$tmp/int.csv" 2> "$tmp/int.err" &
 pid=$!
-sleep 1
-kill -INT "$pid"
+# Wait for the first plain progress line (printed after 5 s): the handler is installed then.
+for _ in $(seq 1 150); do
+  grep -q "models (" "$tmp/int.err" 2>/dev/null && break
+  kill -0 "$pid" 2>/dev/null || break
+  sleep 0.2
+done
+kill -INT "$pid" 2>/dev/null
 wait "$pid"
 rc=$?
 if [ "$rc" = 0 ]; then
   echo "SKIP: the long track finished before the interrupt arrived"
 else
   check "interrupted run exits 130" [ "$rc" = 130 ]
+  check "plain progress lines (rate, time left) when stderr is not a terminal" \
+    grep -qE "^radmode track: [0-9]+/20000 models \([0-9]+%\), [0-9]+ models/s, [0-9:]+ left$" "$tmp/int.err"
   check "interrupted run says nothing was written" grep -q "nothing written" "$tmp/int.err"
   check "interrupted run leaves no file" bash -c "! ls '$tmp' | grep -q '^int.csv'"
 fi

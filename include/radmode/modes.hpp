@@ -18,7 +18,9 @@
 // element slopes weighted by the opposite element lengths,
 //     xi'_i = (h_{i-1} s_i + h_i s_{i-1}) / (h_{i-1} + h_i),   s_i = slope of element i,
 // which is the second-order three-point derivative on a non-uniform mesh; at the two mesh
-// ends the slope of the end element is used (at r = 0 the term r xi' vanishes anyway).
+// ends it is the derivative of the parabola through the last three nodes (also second order;
+// the end element's own slope would be only first order, which shows as a spurious jump of
+// delta P/P at the surface where xi is steep).
 // Integrals (M[xi], inertia, int w dr) are instead taken element by element with the exact
 // element slope and two-point Gauss-Legendre quadrature, the model coefficients being
 // interpolated at the Gauss points by Structure (structure.hpp: P and rho log-linearly in r,
@@ -109,6 +111,11 @@ struct ModeProfile {
   /// Gamma1 sensitivity P r^2 (3 xi + r xi')^2 / M[xi], times R/(G M/R^3):
   /// delta sigma^2 = int gamma1_kernel delta Gamma1 d(r/R) at fixed structure.
   std::vector<double> gamma1_kernel;
+  /// With the regular surface condition: the value it prescribes at R, -(4 + sigma^2) xi(R).
+  /// The profile's own dP_P.back() comes from the finite-element xi' and can differ from it
+  /// next to a zero-pressure surface, where the energy form hardly constrains xi' (the
+  /// compression term is weighted by P -> 0); the profiles file states both.
+  std::optional<double> surface_dP_P_condition;
 };
 
 /// Everything reported about a ModeSet.

@@ -130,11 +130,14 @@ ModeReport make_mode_report(const StellarModel& model, const ModeSet& set,
     q.trusted = sol.trusted;
     q.flag = sol.flag;
     q.error_estimate_s2 = sol.error_estimate;
-    if (sol.omega2 != 0.0) q.error_estimate_rel = sol.error_estimate / std::fabs(sol.omega2);
+    if (sol.omega2 != 0.0 && options.richardson)
+      q.error_estimate_rel = sol.error_estimate / std::fabs(sol.omega2);
     q.sign_uncertain = std::fabs(sol.omega2) <= sol.error_estimate;
     q.stable = sol.omega2 > 0.0;
 
-    if (sol.omega2 > 0.0) {
+    if (q.sign_uncertain) {
+      // Neither a period nor a growth time: the mode may be either.
+    } else if (sol.omega2 > 0.0) {
       const double omega = std::sqrt(sol.omega2);
       const double period = 2.0 * pi / omega;
       q.period_s = period;
@@ -201,8 +204,8 @@ ModeReport make_mode_report(const StellarModel& model, const ModeSet& set,
   if (fundamental == report.modes.end()) {
     report.period_ratio_note = "no period ratios: the fundamental mode is not among the modes";
   } else if (!fundamental->period_s) {
-    report.period_ratio_note = "no period ratios: the fundamental mode is not oscillatory "
-                               "(omega^2 <= 0)";
+    report.period_ratio_note = "no period ratios: the fundamental mode has no established "
+                               "period (omega^2 <= 0, or within its error estimate)";
   } else {
     for (const ModeQuantities& q : report.modes)
       if (q.order > 0 && q.period_s)

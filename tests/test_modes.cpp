@@ -161,7 +161,7 @@ TEST_CASE("growing mode: growth rate, e-folding time, no period") {
   CHECK_FALSE(q.frequency_cd);
   CHECK_FALSE(q.Q_d);
   CHECK_FALSE(q.omega_t_dyn);
-  CHECK(rep.period_ratio_note.find("not oscillatory") != std::string::npos);
+  CHECK(rep.period_ratio_note.find("no established period") != std::string::npos);
   CHECK(rep.period_ratios.empty());
 
   // JSON: absent values are null, nothing is NaN.
@@ -188,6 +188,22 @@ TEST_CASE("a mode whose |omega^2| is below its error estimate has an uncertain s
   set.modes[0].error_estimate = 2e-3 * unit_omega2();
   const ModeReport rep = make_mode_report(model, set, SolveOptions{});
   CHECK(rep.modes[0].sign_uncertain);
+  // No period (it might as well grow) and no growth time (it might as well oscillate).
+  CHECK_FALSE(rep.modes[0].period_s);
+  CHECK_FALSE(rep.modes[0].frequency_uHz);
+  CHECK_FALSE(rep.modes[0].growth_rate_s);
+  CHECK(rep.period_ratios.empty());
+}
+
+TEST_CASE("without extrapolation there is no relative error estimate") {
+  // The solver's estimate is then its residual alone, not the discretization error.
+  const StellarModel model = uniform_sphere(50, 5.0 / 3.0);
+  SolveOptions no_extrapolation;
+  no_extrapolation.richardson = false;
+  const ModeReport rep =
+      make_mode_report(model, analytic_modes(model, 5.0 / 3.0), no_extrapolation);
+  CHECK_FALSE(rep.modes[0].error_estimate_rel);
+  CHECK(rep.modes[0].period_s);
 }
 
 TEST_CASE("uniform sphere, analytic F and 1O: inertia, weight function, Gamma1 kernel") {

@@ -63,27 +63,33 @@ struct ModeQuantities {
   double omega2_s2 = 0;     ///< omega^2 [s^-2]
   double sigma2 = 0;        ///< omega^2 R^3/(G M)
 
-  // Oscillatory modes only (omega^2 > 0).
+  // Oscillatory modes only (omega^2 > 0 and the sign established, i.e. !sign_uncertain: a
+  // period of a mode that may as well not oscillate is not reported).
   std::optional<double> period_s, period_h, period_d;
   std::optional<double> frequency_uHz;  ///< cyclic frequency [microHz]
   std::optional<double> frequency_cd;   ///< cyclic frequency [cycles per day]
   std::optional<double> Q_d;            ///< pulsation constant [d]
   std::optional<double> omega_t_dyn;    ///< omega t_dyn (dimensionless)
 
-  // Growing modes only (omega^2 < 0).
+  // Growing modes only (omega^2 < 0 and !sign_uncertain).
   std::optional<double> growth_rate_s;      ///< eta [s^-1]
   std::optional<double> growth_time_s;      ///< e-folding time 1/eta [s]
   std::optional<double> growth_time_t_dyn;  ///< e-folding time in units of t_dyn
 
   std::optional<double> inertia;     ///< E; absent when xi(R) = 0
-  double error_estimate_s2 = 0;      ///< absolute error estimate of omega^2 [s^-2]
-  std::optional<double> error_estimate_rel; ///< error_estimate / |omega^2|; absent if omega^2 = 0
+  /// Absolute error estimate of omega^2 from the solver [s^-2]. Without Richardson
+  /// extrapolation (SolveOptions::richardson = false) it holds only the solver residual, not
+  /// the discretization error: then error_estimate_rel is absent.
+  double error_estimate_s2 = 0;
+  /// error_estimate_s2 / |omega^2|; absent when omega^2 = 0 or without extrapolation.
+  std::optional<double> error_estimate_rel;
   /// Rayleigh quotient K[xi]/M[xi] of the reported eigenfunction = int w dr + surface term
   /// [s^-2]; agrees with omega2_s2 to the discretization error (a consistency check).
   std::optional<double> omega2_rayleigh_s2;
 
   bool stable = true;       ///< omega^2 > 0
   /// |omega^2| is within its error estimate: the sign (stable or not) is not established.
+  /// Period, frequency and growth fields are then all absent.
   bool sign_uncertain = false;
   bool trusted = false;     ///< from the solver: order established both ways, small error
   std::string flag;         ///< why the mode is not trusted (empty when trusted)

@@ -206,7 +206,9 @@ std::string text_report(const ModesCommandOptions& o, const RunResult& run) {
           std::to_string(q.nodes),
           num(q.sigma2, 7, 'g'),
           num(q.omega2_s2, 5, 'e'),
-          q.stable ? num(q.period_d, 7, 'g') : std::string("growing"),
+          q.sign_uncertain ? std::string("marginal")
+          : q.stable       ? num(q.period_d, 7, 'g')
+                           : std::string("growing"),
           num(q.period_h, 6, 'g'),
           num(q.frequency_uHz, 6, 'g'),
           num(q.frequency_cd, 6, 'g'),
@@ -224,13 +226,13 @@ std::string text_report(const ModesCommandOptions& o, const RunResult& run) {
 
   // Growing modes.
   bool any_growing = false;
-  for (const ModeQuantities& q : modes) any_growing = any_growing || !q.stable;
+  for (const ModeQuantities& q : modes) any_growing = any_growing || q.growth_rate_s;
   if (any_growing) {
     s << "\nGrowing modes (omega^2 <= 0: exp(eta t), no period)\n";
     s << cell("mode", 5, true) << "  " << cell("eta[s^-1]", 12) << "  "
       << cell("e-fold[s]", 12) << "  " << cell("e-fold[t_dyn]", 13) << '\n';
     for (const ModeQuantities& q : modes)
-      if (!q.stable)
+      if (q.growth_rate_s)
         s << cell(q.label, 5, true) << "  " << cell(num(q.growth_rate_s, 5, 'e'), 12) << "  "
           << cell(num(q.growth_time_s, 5, 'e'), 12) << "  "
           << cell(num(q.growth_time_t_dyn, 5, 'g'), 13) << '\n';
@@ -246,9 +248,12 @@ std::string text_report(const ModesCommandOptions& o, const RunResult& run) {
       flags << "  " << q.label << ": the inertia count gives order " << q.order << " but xi has "
             << q.nodes << " nodes; its order is not established\n";
     if (q.sign_uncertain)
-      flags << "  " << q.label << ": |omega^2| is within its error estimate; whether it is "
-                                   "stable is not established\n";
+      flags << "  " << q.label << ": |omega^2| is within its error estimate; whether it "
+                                   "oscillates or grows is not established (no period shown)\n";
   }
+  if (!run.solve.richardson)
+    flags << "  --no-extrapolate: the modes carry no discretization error estimate "
+             "(rel.err is not shown)\n";
   if (!flags.str().empty()) s << "\nFlags\n" << flags.str();
 
   // Period ratios.

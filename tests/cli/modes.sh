@@ -84,6 +84,48 @@ lo=$(/usr/bin/python3 -c "print($f1*0.99)"); hi=$(/usr/bin/python3 -c "print($f1
   fail "--window exited $?: $(cat "$tmp/err")"
 [ "$(tail -n +2 "$tmp/win" | cut -d, -f2)" = "1O" ] || fail "--window around 1O: $(cat "$tmp/win")"
 
+"$radmode" modes "$model" --window 1:2uHz >"$tmp/empty" 2>"$tmp/err" ||
+  fail "an empty window exited $?: $(cat "$tmp/err")"
+grep -q "No modes found in the window" "$tmp/empty" || fail "empty window not reported"
+grep -q "solved for separately" "$tmp/empty" || fail "verdict without the fundamental's solve"
+
+# --- surface condition, shooting check --------------------------------------------------
+# With P = 0 at R both surface conditions select the same (regular) solution (physics.md 4).
+"$radmode" modes "$model" --count 2 --surface fixed-pressure --verify --json >"$tmp/fixed" \
+  2>"$tmp/err" || fail "--surface fixed-pressure --verify exited $?: $(cat "$tmp/err")"
+/usr/bin/python3 - "$tmp/json" "$tmp/fixed" <<'EOF2' || fail "fixed-pressure / verify check failed"
+import json, sys
+a = json.load(open(sys.argv[1]))
+b = json.load(open(sys.argv[2]))
+assert b["options"]["surface"] == "fixed-pressure" and b["options"]["verify"] is True
+for ma, mb in zip(a["modes"], b["modes"]):
+    assert abs(ma["sigma2"] / mb["sigma2"] - 1) < 1e-3, (ma["sigma2"], mb["sigma2"])
+assert [v["agrees"] for v in b["verify"]] == [True, True], b["verify"]
+EOF2
+
+# --- an unstable model: Gamma1 = 1.3 uniform sphere, sigma0^2 = 3 Gamma1 - 4 = -0.1 ---------
+"$radmode" make uniform --gamma1 1.3 --points 300 --output "$tmp/unstable.txt" ||
+  fail "cannot generate the unstable model"
+"$radmode" modes "$tmp/unstable.txt" --count 2 --json --fail-if-unstable >"$tmp/ujson" 2>"$tmp/err"
+code=$?
+[ "$code" = 20 ] || fail "--fail-if-unstable on an unstable model exited $code, expected 20"
+/usr/bin/python3 - "$tmp/ujson" <<'EOF2' || fail "unstable JSON check failed"
+import json, sys
+def no_nan(c):
+    raise ValueError("non-standard number " + c)
+d = json.load(open(sys.argv[1]), parse_constant=no_nan)
+f = d["modes"][0]
+assert f["label"] == "F" and f["stable"] is False
+assert abs(f["sigma2"] + 0.1) < 1e-4, f["sigma2"]          # Sterne 1937 / physics.md 7
+for key in ("period_s", "period_d", "frequency_uHz", "frequency_cd", "Q_d", "omega_t_dyn"):
+    assert f[key] is None, key
+assert f["growth_rate_s"] > 0 and abs(f["growth_rate_s"] * f["growth_time_s"] - 1) < 1e-12
+assert d["period_ratios"] == []
+EOF2
+"$radmode" modes "$tmp/unstable.txt" --count 1 >"$tmp/utext" 2>"$tmp/err" ||
+  fail "without --fail-if-unstable an unstable model should exit 0"
+grep -q "Growing modes" "$tmp/utext" || fail "text report lacks the growing-mode table"
+
 # --- bad input --------------------------------------------------------------------------
 expect_exit 2 "--count" "$radmode" modes "$model" --count 0
 expect_exit 2 "--window" "$radmode" modes "$model" --window 20-200uHz

@@ -420,3 +420,42 @@ TEST_CASE("finite elements against shooting: generated uniform sphere, dynamical
   }
   CHECK(check[0].omega2_shoot < 0.0);
 }
+
+TEST_CASE("Gamma1 discontinuity in a uniform sphere: table-independent shooting, FE agrees") {
+  // Uniform sphere with Gamma1 = 5/3 inside r = R/2 and 1.4 outside (a repeated row at R/2).
+  // P, rho and m are reproduced exactly by the structure's interpolation (structure.hpp), so the
+  // shooting eigenvalue must not depend on the table spacing. Variational bound (physics.md
+  // section 4: K[xi] grows with Gamma1 at every r, so every eigenvalue does): each sigma_k^2
+  // lies strictly between Sterne's values (Sterne 1937) for Gamma1 = 1.4 and 5/3.
+  auto model_with = [](std::size_t intervals) {
+    const std::vector<double> x = test::uniform_mesh(intervals);
+    const auto half = static_cast<std::size_t>(
+        std::lower_bound(x.begin(), x.end(), 0.5 - 1e-12) - x.begin());
+    StellarModel m = test::uniform_sphere(x, 5.0 / 3.0);
+    for (auto* v : {&m.r, &m.m, &m.P, &m.rho, &m.gamma1})
+      v->insert(v->begin() + static_cast<std::ptrdiff_t>(half), (*v)[half]);
+    for (std::size_t j = half + 1; j < m.gamma1.size(); ++j) m.gamma1[j] = 1.4;
+    return m;
+  };
+  const StellarModel coarse = model_with(200);
+  const StellarModel fine = model_with(400);
+  const double unit = constants::G * fine.mass() / std::pow(fine.radius(), 3);
+  SolveOptions so;
+  so.count = 4;
+  const ModeSet set = solve_modes(fine, so);
+  REQUIRE(set.modes.size() == 4);
+  const auto check = verify_modes(fine, set);
+  for (std::size_t k = 0; k < check.size(); ++k) {
+    const int kk = static_cast<int>(k);
+    const ShootResult rc = shoot_mode(coarse, set.modes[k].omega2);
+    CAPTURE(k);
+    CAPTURE(check[k].shoot.message);
+    REQUIRE(rc.converged);
+    CHECK(check[k].agrees);
+    CHECK(rc.nodes == kk);
+    CHECK(rc.omega2 == doctest::Approx(check[k].omega2_shoot).epsilon(1e-9));
+    const double s2 = check[k].omega2_shoot / unit;
+    CHECK(s2 > sterne(1.4, kk));
+    CHECK(s2 < sterne(5.0 / 3.0, kk));
+  }
+}

@@ -1,0 +1,418 @@
+#include "radmode/diagnostics.hpp"
+
+#include "radmode/constants.hpp"
+#include "radmode/error.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <limits>
+#include <sstream>
+
+namespace radmode {
+
+namespace {
+
+using constants::G;
+using constants::pi;
+constexpr double four_thirds = 4.0 / 3.0;
+
+std::string num(double x) {
+  std::ostringstream s;
+  s.precision(4);
+  s << x;
+  return s.str();
+}
+
+void require_positive(const char* name, double v) {
+  if (!(v > 0.0) || !std::isfinite(v))
+    throw UsageError("diagnostics option " + std::string(name) + " = " + num(v) +
+                     ": expected a finite number > 0");
+}
+
+/// Second-order three-point derivative of y with respect to x at the middle point of a
+/// non-uniform stencil (x0 < x1 < x2).
+double derivative3(double x0, double x1, double x2, double y0, double y1, double y2) {
+  const double h1 = x1 - x0, h2 = x2 - x1;
+  return -h2 / (h1 * (h1 + h2)) * y0 + (h2 - h1) / (h1 * h2) * y1 + h1 / (h2 * (h1 + h2)) * y2;
+}
+
+/// Index of the nearest point before i whose x differs from x[i] (or npos).
+constexpr std::size_t npos = static_cast<std::size_t>(-1);
+std::size_t distinct_before(const std::vector<double>& x, std::size_t i) {
+  for (std::size_t j = i; j-- > 0;)
+    if (x[j] != x[i]) return j;
+  return npos;
+}
+std::size_t distinct_after(const std::vector<double>& x, std::size_t i) {
+  for (std::size_t j = i + 1; j < x.size(); ++j)
+    if (x[j] != x[i]) return j;
+  return npos;
+}
+
+/// Relative HSE residual at point i with the derivative of y with respect to x (distinct
+/// neighbours), against `target` (the exact dy/dx in equilibrium, < 0). NaN when unavailable.
+double residual_form(const std::vector<double>& x, const std::vector<double>& y, std::size_t i,
+                     double target) {
+  const std::size_t a = distinct_before(x, i), b = distinct_after(x, i);
+  if (a == npos || b == npos || !(target < 0.0)) return std::numeric_limits<double>::quiet_NaN();
+  const double d = derivative3(x[a], x[i], x[b], y[a], y[i], y[b]);
+  return std::abs(d - target) / std::abs(target);
+}
+
+/// P / rho [erg g^-1], taken as 0 at a zero-pressure surface point where rho = 0 too (the
+/// limit for a polytrope, where P/rho is proportional to theta).
+double p_over_rho(const StellarModel& model, std::size_t i) {
+  return model.P[i] == 0.0 ? 0.0 : model.P[i] / model.rho[i];
+}
+
+/// b G^2 M^3 / R^2 [g cm^4 s^-4] of physics.md section 5, for the
+/// specific internal energy u [erg g^-1] at each point; trapezoid in m on the m column.
+double pn_integral(const StellarModel& model, const std::vector<double>& u) {
+  const std::size_t n = model.size();
+  double U = 0, Omega = 0, total = 0;
+  double prev_f = 0;
+  auto gm_over_r = [&](std::size_t i) {
+    return model.r[i] > 0.0 ? G * model.m[i] / model.r[i] : 0.0;
+  };
+  for (std::size_t i = 0; i < n; ++i) {
+    if (i > 0) {
+      const double dm = model.m[i] - model.m[i - 1];
+      U += 0.5 * (u[i] + u[i - 1]) * dm;
+      Omega += 0.5 * (gm_over_r(i) + gm_over_r(i - 1)) * dm;
+    }
+    const double gr = gm_over_r(i);
+    const double first = model.r[i] > 0.0 ? G / model.r[i] * (U - Omega) : 0.0;
+    const double f = first + 0.5 * gr * gr + gr * (u[i] + p_over_rho(model, i));
+    if (i > 0) total += 0.5 * (f + prev_f) * (model.m[i] - model.m[i - 1]);
+    prev_f = f;
+  }
+  return total;
+}
+
+void warn(ModelDiagnostics& d, std::string code, std::string message) {
+  d.warnings.push_back({std::move(code), std::move(message)});
+}
+
+std::string where_text(const StellarModel& model, std::size_t i) {
+  std::string s = "r = " + num(model.r[i]) + " cm (r/R = " + num(model.r[i] / model.radius()) +
+                  ", m/M = " + num(model.m[i] / model.mass()) + ")";
+  if (i < model.line.size() && model.line[i] > 0)
+    s += ", " + (model.source.empty() ? std::string("line ") : model.source + " line ") +
+         std::to_string(model.line[i]);
+  else
+    s += ", point " + std::to_string(i + 1);
+  return s;
+}
+
+void find_gamma1_zones(const StellarModel& model, ModelDiagnostics& d) {
+  const std::size_t n = model.size();
+  auto below = [&](std::size_t i) { return model.gamma1[i] < four_thirds; };
+  // Crossing between points i-1 and i (one below, one not): linear in r for Gamma1 and m.
+  auto crossing = [&](std::size_t i, double& r, double& m) {
+    const double g0 = model.gamma1[i - 1], g1 = model.gamma1[i];
+    const double t = g1 != g0 ? (four_thirds - g0) / (g1 - g0) : 0.5;
+    r = model.r[i - 1] + t * (model.r[i] - model.r[i - 1]);
+    m = model.m[i - 1] + t * (model.m[i] - model.m[i - 1]);
+  };
+  auto line_of = [&](std::size_t i) -> std::size_t {
+    return i < model.line.size() ? model.line[i] : 0;
+  };
+  std::size_t i = 0;
+  while (i < n) {
+    if (!below(i)) {
+      ++i;
+      continue;
+    }
+    Gamma1Zone z;
+    if (i == 0) {
+      z.r_inner_cm = model.r[0];
+      z.m_inner_g = model.m[0];
+    } else {
+      crossing(i, z.r_inner_cm, z.m_inner_g);
+    }
+    z.first_line = line_of(i);
+    z.gamma1_min = model.gamma1[i];
+    std::size_t j = i;
+    while (j + 1 < n && below(j + 1)) {
+      ++j;
+      z.gamma1_min = std::min(z.gamma1_min, model.gamma1[j]);
+    }
+    z.last_line = line_of(j);
+    if (j + 1 == n) {
+      z.r_outer_cm = model.r[j];
+      z.m_outer_g = model.m[j];
+    } else {
+      crossing(j + 1, z.r_outer_cm, z.m_outer_g);
+    }
+    d.gamma1_below_4_3_zones.push_back(z);
+    i = j + 1;
+  }
+}
+
+} // namespace
+
+void DiagnosticsOptions::validate() const {
+  require_positive("hse_warn", hse_warn);
+  require_positive("mass_warn", mass_warn);
+  require_positive("compactness_warn", compactness_warn);
+  if (!(hse_pressure_floor >= 0.0 && hse_pressure_floor < 1.0))
+    throw UsageError("diagnostics option hse_pressure_floor = " + num(hse_pressure_floor) +
+                     ": expected a number in [0, 1)");
+}
+
+const char* pn_energy_name(PnEnergy e) noexcept {
+  return e == PnEnergy::model ? "model" : "radiation_limit";
+}
+
+ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& options) {
+  options.validate();
+  const std::size_t n = model.size();
+  if (n < 3 || model.m.size() != n || model.P.size() != n || model.rho.size() != n ||
+      model.gamma1.size() != n)
+    throw Error(ErrorKind::numerical, "diagnostics need a validated model with at least 3 points");
+
+  ModelDiagnostics d;
+  const auto& r = model.r;
+  const auto& m = model.m;
+  const auto& P = model.P;
+  const auto& rho = model.rho;
+  const auto& g1 = model.gamma1;
+  const double M = model.mass(), R = model.radius();
+  if (!(M > 0.0) || !(R > 0.0))
+    throw Error(ErrorKind::numerical, model.source + ": total mass and radius must be > 0");
+
+  d.points = n;
+  d.mass_g = M;
+  d.radius_cm = R;
+  d.mean_density_g_cm3 = 3.0 * M / (4.0 * pi * R * R * R);
+  d.rho_c_g_cm3 = rho[0];
+  d.rho_c_over_mean = rho[0] / d.mean_density_g_cm3;
+  d.has_centre = model.has_centre();
+  d.surface_pressure = model.surface_pressure();
+
+  // Time scales.
+  d.t_dyn_s = 1.0 / std::sqrt(G * d.mean_density_g_cm3);
+  d.t_kepler_s = std::sqrt(R * R * R / (G * M));
+  d.t_freefall_s = std::sqrt(3.0 * pi / (32.0 * G * d.mean_density_g_cm3));
+  {
+    double t = 0;
+    for (std::size_t i = 1; i < n; ++i) {
+      const double dr = r[i] - r[i - 1];
+      if (dr == 0.0) continue;
+      const double c0 = std::sqrt(g1[i - 1] * p_over_rho(model, i - 1));
+      const double c1 = std::sqrt(g1[i] * p_over_rho(model, i));
+      if (c0 + c1 == 0.0) {
+        t = std::numeric_limits<double>::infinity();
+        break;
+      }
+      t += 2.0 * dr / (c0 + c1);
+    }
+    d.t_sound_s = t;
+  }
+
+  // Integrals in r (trapezoid): mass, pressure moments, inertia of xi = const.
+  double mass_int = 0, p_int = 0, g1p_int = 0, excess_int = 0, inertia_int = 0;
+  for (std::size_t i = 1; i < n; ++i) {
+    const double dr = r[i] - r[i - 1];
+    auto trap = [&](auto f) { return 0.5 * dr * (f(i - 1) + f(i)); };
+    mass_int += trap([&](std::size_t k) { return 4.0 * pi * r[k] * r[k] * rho[k]; });
+    p_int += trap([&](std::size_t k) { return P[k] * r[k] * r[k]; });
+    g1p_int += trap([&](std::size_t k) { return g1[k] * P[k] * r[k] * r[k]; });
+    excess_int += trap([&](std::size_t k) { return (g1[k] - four_thirds) * P[k] * r[k] * r[k]; });
+    inertia_int += trap([&](std::size_t k) { return rho[k] * r[k] * r[k] * r[k] * r[k]; });
+  }
+  if (!(p_int > 0.0))
+    throw Error(ErrorKind::numerical,
+                model.source + ": the pressure integral is zero; Gamma1 averages are undefined");
+
+  d.mass_integral_g = mass_int;
+  const double dm_table = M - m[0];
+  d.mass_consistency = dm_table > 0.0 ? std::abs(dm_table - mass_int) / dm_table
+                                      : std::numeric_limits<double>::infinity();
+
+  d.gamma1_pressure_weighted = g1p_int / p_int;
+  const auto gmin = std::min_element(g1.begin(), g1.end());
+  d.gamma1_min = *gmin;
+  d.gamma1_min_r_cm = r[static_cast<std::size_t>(gmin - g1.begin())];
+  find_gamma1_zones(model, d);
+  const double inertia = inertia_int + std::pow(R, 6) * d.surface_pressure / (G * M);
+  d.omega2_homologous = 9.0 * excess_int / inertia;
+  d.sigma2_homologous = d.omega2_homologous * R * R * R / (G * M);
+
+  // Hydrostatic equilibrium residual.
+  {
+    std::vector<double> s(n);
+    for (std::size_t i = 0; i < n; ++i) s[i] = std::cbrt(m[i] * m[i]);
+    const double p_floor = options.hse_pressure_floor * *std::max_element(P.begin(), P.end());
+    double worst = -1;
+    for (std::size_t i = 1; i + 1 < n; ++i) {
+      if (!(r[i] > 0.0) || !(m[i] > 0.0) || P[i] < p_floor) {
+        ++d.hse_points_skipped;
+        continue;
+      }
+      const double g_rho = G * m[i] * rho[i] / (r[i] * r[i]);
+      const double target_s = -3.0 * G * std::cbrt(std::pow(m[i], 4)) /
+                              (8.0 * pi * std::pow(r[i], 4));
+      const double by_r = residual_form(r, P, i, -g_rho);
+      const double by_m = residual_form(s, P, i, target_s);
+      double res;
+      if (std::isnan(by_r) && std::isnan(by_m)) {
+        ++d.hse_points_skipped;
+        continue;
+      }
+      if (std::isnan(by_r)) res = by_m;
+      else if (std::isnan(by_m)) res = by_r;
+      else res = std::min(by_r, by_m);
+      ++d.hse_points_checked;
+      if (res > worst) {
+        worst = res;
+        d.hse_worst_index = i;
+      }
+    }
+    if (d.hse_points_checked > 0) {
+      d.hse_residual_max = worst;
+      d.hse_worst_r_cm = r[d.hse_worst_index];
+      d.hse_worst_m_g = m[d.hse_worst_index];
+      d.hse_worst_line =
+          d.hse_worst_index < model.line.size() ? model.line[d.hse_worst_index] : 0;
+    }
+  }
+
+  // Post-Newtonian coefficient.
+  d.compactness = 2.0 * G * M / (R * constants::c_light * constants::c_light);
+  {
+    double W = 0; // int G m dm / r
+    for (std::size_t i = 1; i < n; ++i) {
+      auto f = [&](std::size_t k) { return r[k] > 0.0 ? G * m[k] / r[k] : 0.0; };
+      W += 0.5 * (f(i) + f(i - 1)) * (m[i] - m[i - 1]);
+    }
+    d.binding_a = W * R / (G * M * M);
+    std::vector<double> u_rad(n), u_model(n);
+    d.model_has_u = model.u.size() == n;
+    const bool model_u_defined =
+        d.model_has_u || std::all_of(g1.begin(), g1.end(), [](double g) { return g > 1.0; });
+    for (std::size_t i = 0; i < n; ++i) {
+      u_rad[i] = 3.0 * p_over_rho(model, i);
+      u_model[i] = d.model_has_u ? model.u[i]
+                                 : (model_u_defined ? p_over_rho(model, i) / (g1[i] - 1.0) : 0.0);
+    }
+    const double scale = G * G * M * M * M / (R * R);
+    const double b_rad = pn_integral(model, u_rad) / scale;
+    d.pn_coefficient_radiation_limit = b_rad / (3.0 * d.binding_a);
+    d.pn_coefficient_model_energy = std::numeric_limits<double>::quiet_NaN();
+    if (model_u_defined)
+      d.pn_coefficient_model_energy = pn_integral(model, u_model) / scale / (3.0 * d.binding_a);
+    else if (options.pn_energy == PnEnergy::model)
+      throw Error(ErrorKind::numerical,
+                  model.source + ": the post-Newtonian coefficient with the model's internal "
+                                 "energy needs a u column or Gamma1 > 1 everywhere");
+    d.pn_energy = options.pn_energy;
+    d.pn_coefficient = options.pn_energy == PnEnergy::model ? d.pn_coefficient_model_energy
+                                                           : d.pn_coefficient_radiation_limit;
+    d.gamma1_critical_pn = four_thirds + d.pn_coefficient * d.compactness;
+    d.pn_unstable = d.gamma1_pressure_weighted < d.gamma1_critical_pn;
+  }
+
+  // Warnings.
+  if (!d.has_centre)
+    warn(d, "no_centre",
+         "the model does not reach r = 0 (innermost point at r = " + num(r[0]) +
+             " cm, m = " + num(m[0]) + " g); central density, the mass check and the integrals "
+             "cover the tabulated part only");
+  if (d.hse_points_checked == 0)
+    warn(d, "hse_unchecked", "no interior point could be checked for hydrostatic equilibrium");
+  else if (d.hse_residual_max > options.hse_warn)
+    warn(d, "hse_residual",
+         "hydrostatic equilibrium residual " + num(d.hse_residual_max) + " exceeds " +
+             num(options.hse_warn) + "; worst at " + where_text(model, d.hse_worst_index));
+  if (!(d.mass_consistency <= options.mass_warn))
+    warn(d, "mass_inconsistent",
+         "m column and integral of 4 pi r^2 rho dr differ by a relative " +
+             num(d.mass_consistency) + " (threshold " + num(options.mass_warn) + ")");
+  if (!std::isfinite(d.t_sound_s))
+    warn(d, "sound_time_infinite",
+         "the sound speed vanishes on two adjacent points; the sound-crossing time is infinite");
+  if (d.gamma1_pressure_weighted < four_thirds)
+    warn(d, "gamma1_mean_below_4_3",
+         "pressure-weighted <Gamma1> = " + num(d.gamma1_pressure_weighted) +
+             " < 4/3: sufficient for dynamical instability");
+  if (d.compactness > options.compactness_warn)
+    warn(d, "compactness_high",
+         "compactness 2GM/(Rc^2) = " + num(d.compactness) + " > " +
+             num(options.compactness_warn) +
+             ": the first post-Newtonian criterion is unreliable; a general-relativistic "
+             "analysis is needed");
+  return d;
+}
+
+void write_warnings_json(JsonWriter& json, const std::vector<DiagnosticWarning>& warnings) {
+  json.key("warnings").begin_array();
+  for (const auto& w : warnings) {
+    json.begin_object();
+    json.field("code", w.code);
+    json.field("message", w.message);
+    json.end_object();
+  }
+  json.end_array();
+}
+
+void write_diagnostics_json(JsonWriter& j, const ModelDiagnostics& d) {
+  j.field("points", d.points);
+  j.field("mass_g", d.mass_g);
+  j.field("mass_msun", d.mass_g / constants::M_sun);
+  j.field("radius_cm", d.radius_cm);
+  j.field("radius_rsun", d.radius_cm / constants::R_sun);
+  j.field("mean_density_g_cm3", d.mean_density_g_cm3);
+  j.field("rho_c_g_cm3", d.rho_c_g_cm3);
+  j.field("rho_c_over_mean", d.rho_c_over_mean);
+  j.field("has_centre", d.has_centre);
+  j.field("surface_pressure_dyn_cm2", d.surface_pressure);
+  j.field("t_dyn_s", d.t_dyn_s);
+  j.field("t_kepler_s", d.t_kepler_s);
+  j.field("t_freefall_s", d.t_freefall_s);
+  j.field("t_sound_s", d.t_sound_s);
+  j.field("hse_residual_max", d.hse_residual_max);
+  j.key("hse_worst").begin_object();
+  j.field("r_cm", d.hse_worst_r_cm);
+  j.field("r_over_R", d.hse_worst_r_cm / d.radius_cm);
+  j.field("m_over_M", d.hse_worst_m_g / d.mass_g);
+  j.field("line", d.hse_worst_line);
+  j.field("point", d.hse_worst_index + 1);
+  j.field("points_checked", d.hse_points_checked);
+  j.field("points_skipped", d.hse_points_skipped);
+  j.end_object();
+  j.field("mass_integral_g", d.mass_integral_g);
+  j.field("mass_consistency", d.mass_consistency);
+  j.field("gamma1_pressure_weighted", d.gamma1_pressure_weighted);
+  j.field("gamma1_min", d.gamma1_min);
+  j.field("gamma1_min_r_cm", d.gamma1_min_r_cm);
+  j.key("gamma1_below_4_3_zones").begin_array();
+  for (const auto& z : d.gamma1_below_4_3_zones) {
+    j.begin_object();
+    j.field("r_inner_cm", z.r_inner_cm);
+    j.field("r_outer_cm", z.r_outer_cm);
+    j.field("r_inner_over_R", z.r_inner_cm / d.radius_cm);
+    j.field("r_outer_over_R", z.r_outer_cm / d.radius_cm);
+    j.field("m_inner_g", z.m_inner_g);
+    j.field("m_outer_g", z.m_outer_g);
+    j.field("m_inner_over_M", z.m_inner_g / d.mass_g);
+    j.field("m_outer_over_M", z.m_outer_g / d.mass_g);
+    j.field("gamma1_min", z.gamma1_min);
+    j.field("first_line", z.first_line);
+    j.field("last_line", z.last_line);
+    j.end_object();
+  }
+  j.end_array();
+  j.field("sigma2_homologous", d.sigma2_homologous);
+  j.field("omega2_homologous_s2", d.omega2_homologous);
+  j.field("compactness", d.compactness);
+  j.field("binding_a", d.binding_a);
+  j.field("pn_coefficient", d.pn_coefficient);
+  j.field("pn_internal_energy", pn_energy_name(d.pn_energy));
+  j.field("pn_coefficient_radiation_limit", d.pn_coefficient_radiation_limit);
+  j.field("pn_coefficient_model_energy", d.pn_coefficient_model_energy);
+  j.field("gamma1_critical_pn", d.gamma1_critical_pn);
+  j.field("pn_unstable", d.pn_unstable);
+}
+
+} // namespace radmode

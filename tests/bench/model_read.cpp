@@ -1,0 +1,76 @@
+// Benchmark: parsing a 2,000-point model table (native format and through a column map).
+// Built, not run by ctest:  build/tests/bench_model_read [repetitions]
+// Prints the mean wall time per parse. Batch runs parse thousands of models, so one parse of
+// a 2,000-line table should stay well below a millisecond.
+#include "radmode/model_io.hpp"
+
+#include <chrono>
+#include <cmath>
+#include <cstdio>
+#include <cstdlib>
+#include <string>
+
+namespace {
+
+/// 2,000 rows of an invented model, 9 columns, numbers with `digits` significant digits.
+std::string make_table(std::size_t n, bool solar_units, int digits) {
+  std::string t = "# invented benchmark model\n# name = bench\n";
+  t += solar_units ? "r[Rsun] m[Msun] P[log10] rho Gamma1 T L nabla_ad u\n"
+                   : "r m P rho Gamma1 T L nabla_ad u\n";
+  char buf[64];
+  for (std::size_t i = 0; i < n; ++i) {
+    const double x = double(i) / double(n - 1);
+    const double P = 1e17 * (1.0 - 0.999 * x * x);
+    const double row[9] = {solar_units ? 1.3 * x : 1.3 * x * 6.957e10,
+                           solar_units ? 1.6 * x * x * x : 1.6 * x * x * x * 1.989e33,
+                           solar_units ? std::log10(P) : P,
+                           2.0 * (1.0 - 0.9 * x),
+                           5.0 / 3.0,
+                           1e7 * (1.0 - 0.99 * x),
+                           3.8e33 * x,
+                           0.4,
+                           1e14 * (1.0 - 0.9 * x)};
+    for (double v : row) {
+      std::snprintf(buf, sizeof buf, "%.*g ", digits, v);
+      t += buf;
+    }
+    t += '\n';
+  }
+  return t;
+}
+
+double time_per_parse(const std::string& text, const radmode::ReadOptions& options, int reps) {
+  std::size_t sink = 0;
+  const auto start = std::chrono::steady_clock::now();
+  for (int k = 0; k < reps; ++k) sink += radmode::parse_model(text, "bench", options).size();
+  const std::chrono::duration<double> elapsed = std::chrono::steady_clock::now() - start;
+  if (sink == 0) std::puts("(no points)");
+  return elapsed.count() / reps;
+}
+
+} // namespace
+
+int main(int argc, char** argv) {
+  const int reps = argc > 1 ? std::atoi(argv[1]) : 500;
+  if (reps <= 0) {
+    std::fprintf(stderr, "usage: bench_model_read [repetitions > 0]\n");
+    return 2;
+  }
+  const std::size_t n = 2000;
+  const std::string short_numbers = make_table(n, false, 8);
+  const std::string native = make_table(n, false, 17);
+  const std::string solar = make_table(n, true, 17);
+  radmode::ReadOptions map = radmode::parse_column_map(
+      "r=1:Rsun,m=2:Msun,P=3:log10,rho=4,Gamma1=5,T=6,L=7,nabla_ad=8,u=9");
+  map.skip_lines = 3;
+  std::printf("table: %zu points x 9 columns; %d repetitions\n", n, reps);
+  std::printf("native, cgs, 8 digits     (%6zu bytes): %8.1f us per parse\n",
+              short_numbers.size(), 1e6 * time_per_parse(short_numbers, {}, reps));
+  std::printf("native, cgs, 17 digits    (%6zu bytes): %8.1f us per parse\n", native.size(),
+              1e6 * time_per_parse(native, {}, reps));
+  std::printf("native, solar + log10     (%6zu bytes): %8.1f us per parse\n", solar.size(),
+              1e6 * time_per_parse(solar, {}, reps));
+  std::printf("column map by number, log (%6zu bytes): %8.1f us per parse\n", solar.size(),
+              1e6 * time_per_parse(solar, map, reps));
+  return 0;
+}

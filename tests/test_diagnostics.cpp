@@ -1,0 +1,213 @@
+// Model diagnostics (include/radmode/diagnostics.hpp) against published values, analytic
+// results and facts of the trade.
+#include "radmode/diagnostics.hpp"
+
+#include "radmode/constants.hpp"
+#include "radmode/error.hpp"
+#include "analytic_models.hpp"
+#include "diag_models.hpp"
+
+#include <doctest/doctest.h>
+
+#include <cmath>
+#include <string>
+
+using namespace radmode;
+using radmode::test::polytrope_model;
+namespace c = radmode::constants;
+
+namespace {
+StellarModel uniform_sphere_model(std::size_t points, double mass_g, double radius_cm,
+                                  double gamma1) {
+  return radmode::test::uniform_sphere(radmode::test::uniform_mesh(points - 1), gamma1, mass_g,
+                                       radius_cm);
+}
+} // namespace
+
+TEST_CASE("time scales of the Sun-scaled n = 3 polytrope") {
+  const StellarModel model = polytrope_model(3.0, 801, c::M_sun, c::R_sun, 5.0 / 3.0);
+  const ModelDiagnostics d = diagnose(model);
+  // physics.md section 2 (derived from the nominal IAU 2015 M_sun, R_sun and CODATA G):
+  // t_dyn = 3260 s, t_K = 1593 s, t_ff = 1769 s. Fact of the trade (common practice): the
+  // Sun's dynamical time is about an hour.
+  CHECK(d.t_dyn_s == doctest::Approx(3260).epsilon(1e-3));
+  CHECK(d.t_kepler_s == doctest::Approx(1593).epsilon(1e-3));
+  CHECK(d.t_freefall_s == doctest::Approx(1769).epsilon(1e-3));
+  CHECK(d.t_dyn_s / c::hour_s == doctest::Approx(0.91).epsilon(0.01));
+  // Exact relations between the definitions: t_ff = pi t_K / sqrt(8), t_dyn = sqrt(4 pi/3) t_K.
+  CHECK(d.t_freefall_s == doctest::Approx(c::pi * d.t_kepler_s / std::sqrt(8.0)).epsilon(1e-12));
+  CHECK(d.t_dyn_s == doctest::Approx(std::sqrt(4.0 * c::pi / 3.0) * d.t_kepler_s).epsilon(1e-12));
+  // Common practice: in hydrostatic equilibrium t_ff, t_sc and t_dyn agree within a factor of a
+  // few.
+  for (double t : {d.t_freefall_s, d.t_sound_s}) {
+    CHECK(t / d.t_dyn_s > 1.0 / 4.0);
+    CHECK(t / d.t_dyn_s < 4.0);
+  }
+  // Chandrasekhar 1939 (Table 4), physics.md section 7: rho_c / rho_mean = 54.1825 for n = 3.
+  CHECK(d.rho_c_over_mean == doctest::Approx(54.1825).epsilon(2e-4));
+  CHECK(d.mass_g == c::M_sun);
+  CHECK(d.radius_cm == c::R_sun);
+  CHECK(d.mean_density_g_cm3 == doctest::Approx(1.41).epsilon(5e-3)); // Sun, common practice
+  CHECK(d.has_centre);
+  // The generated model is in equilibrium: no hydrostatic or mass warning.
+  CHECK(d.hse_residual_max < 1e-2);
+  CHECK(d.mass_consistency < 1e-4);
+  for (const auto& w : d.warnings) CHECK_MESSAGE(w.code != "hse_residual", w.message);
+  CHECK(d.gamma1_pressure_weighted == doctest::Approx(5.0 / 3.0));
+  CHECK(d.gamma1_below_4_3_zones.empty());
+}
+
+TEST_CASE("sound-crossing time of the uniform sphere is analytic") {
+  // c_s^2 = Gamma1 P / rho = Gamma1 (G M / 2R) (1 - x^2): int_0^R dr / c_s =
+  // R (2R / (Gamma1 G M))^(1/2) * pi / 2. The sound speed vanishes at the surface (integrable
+  // singularity), which the per-cell rule must handle.
+  const double M = 2 * c::M_sun, R = 3 * c::R_sun, g = 5.0 / 3.0;
+  const StellarModel model = uniform_sphere_model(2001, M, R, g);
+  const ModelDiagnostics d = diagnose(model);
+  const double exact = R * std::sqrt(2.0 * R / (g * c::G * M)) * c::pi / 2.0;
+  CHECK(d.t_sound_s == doctest::Approx(exact).epsilon(2e-3));
+  const ModelDiagnostics d2 = diagnose(uniform_sphere_model(8001, M, R, g));
+  // The error shrinks with resolution (it is set by the last cell's square-root singularity).
+  CHECK(std::abs(d2.t_sound_s - exact) < std::abs(d.t_sound_s - exact));
+  CHECK(d.rho_c_over_mean == doctest::Approx(1.0));
+  CHECK(d.hse_residual_max < 1e-8); // P is quadratic in r and linear in m^(2/3): exact
+}
+
+TEST_CASE("post-Newtonian structure coefficient K: published values") {
+  // Chandrasekhar 1964 (ApJ 140, 417), values from memory, physics.md section 5:
+  // K = 1.1245 for n = 3 and 19/42 for the uniform sphere. 19/42 is re-derived analytically in
+  // docs/dev-diag.md (with u = 3P/rho). Both must come out to 3 digits.
+  const ModelDiagnostics n3 = diagnose(polytrope_model(3.0, 801, c::M_sun, c::R_sun, 5.0 / 3.0));
+  CHECK(n3.pn_coefficient == doctest::Approx(1.1245).epsilon(5e-4));
+  CHECK(n3.pn_coefficient_radiation_limit == n3.pn_coefficient);
+  CHECK(n3.binding_a == doctest::Approx(1.5).epsilon(1e-4)); // a = 3/(5 - n)
+
+  const ModelDiagnostics u = diagnose(uniform_sphere_model(801, c::M_sun, c::R_sun, 5.0 / 3.0));
+  CHECK(u.pn_coefficient == doctest::Approx(19.0 / 42.0).epsilon(5e-4));
+  CHECK(u.binding_a == doctest::Approx(0.6).epsilon(1e-4));
+
+  // The same integral with the model's own u = P/((Gamma1 - 1) rho): for Gamma1 = 4/3 it is the
+  // radiation limit again; for Gamma1 = 5/3 the uniform sphere gives 5/21 (analytic,
+  // docs/dev-diag.md) -- why the structure coefficient is defined in the radiation limit.
+  const ModelDiagnostics u43 = diagnose(uniform_sphere_model(801, c::M_sun, c::R_sun, 4.0 / 3.0));
+  CHECK(u43.pn_coefficient_model_energy == doctest::Approx(19.0 / 42.0).epsilon(5e-4));
+  CHECK(u.pn_coefficient_model_energy == doctest::Approx(5.0 / 21.0).epsilon(5e-4));
+  DiagnosticsOptions opt;
+  opt.pn_energy = PnEnergy::model;
+  CHECK(diagnose(uniform_sphere_model(801, c::M_sun, c::R_sun, 5.0 / 3.0), opt).pn_coefficient ==
+        doctest::Approx(5.0 / 21.0).epsilon(5e-4));
+
+  // A tabulated u column takes precedence over P/((Gamma1 - 1) rho).
+  StellarModel with_u = uniform_sphere_model(801, c::M_sun, c::R_sun, 5.0 / 3.0);
+  with_u.u.resize(with_u.size());
+  for (std::size_t i = 0; i < with_u.size(); ++i) with_u.u[i] = 3.0 * with_u.P[i] / with_u.rho[i];
+  const ModelDiagnostics wu = diagnose(with_u, opt);
+  CHECK(wu.model_has_u);
+  CHECK(wu.pn_coefficient == doctest::Approx(19.0 / 42.0).epsilon(5e-4));
+}
+
+TEST_CASE("homologous sigma^2 and <Gamma1> of the uniform sphere") {
+  // sigma_hom^2 = sigma_0^2 = 3 Gamma1 - 4 for the uniform sphere (Sterne 1937; the
+  // fundamental of the uniform sphere is exactly homologous).
+  for (double g : {1.3, 4.0 / 3.0, 5.0 / 3.0}) {
+    const ModelDiagnostics d = diagnose(uniform_sphere_model(401, c::M_sun, c::R_sun, g));
+    CHECK(d.sigma2_homologous == doctest::Approx(3 * g - 4).epsilon(1e-4).scale(1));
+    CHECK(d.gamma1_pressure_weighted == doctest::Approx(g));
+    CHECK(d.gamma1_min == doctest::Approx(g));
+    CHECK(d.compactness ==
+          doctest::Approx(2 * c::G * c::M_sun / (c::R_sun * c::c_light * c::c_light)));
+    if (g < 4.0 / 3.0) {
+      REQUIRE(d.gamma1_below_4_3_zones.size() == 1);
+      CHECK(d.gamma1_below_4_3_zones[0].r_inner_cm == 0.0);
+      CHECK(d.gamma1_below_4_3_zones[0].r_outer_cm == c::R_sun);
+      CHECK(d.gamma1_below_4_3_zones[0].m_outer_g == c::M_sun);
+      CHECK(d.pn_unstable);
+    } else {
+      CHECK(d.gamma1_below_4_3_zones.empty());
+    }
+  }
+}
+
+TEST_CASE("a thin Gamma1 < 4/3 layer is located by radius and mass") {
+  StellarModel model = polytrope_model(1.5, 401, c::M_sun, c::R_sun, 5.0 / 3.0);
+  // Gamma1 dips linearly to 1.2 at r/R = 0.7, back to 5/3 at 0.65 and 0.75 (a triangle):
+  // it crosses 4/3 at r/R = 0.7 -/+ 0.05 * (4/3 - 1.2)/(5/3 - 1.2) = 0.7 -/+ 0.0142857.
+  for (std::size_t i = 0; i < model.size(); ++i) {
+    const double x = model.r[i] / model.radius();
+    const double t = std::abs(x - 0.7) / 0.05;
+    if (t < 1.0) model.gamma1[i] = 1.2 + (5.0 / 3.0 - 1.2) * t;
+  }
+  const ModelDiagnostics d = diagnose(model);
+  REQUIRE(d.gamma1_below_4_3_zones.size() == 1);
+  const auto& z = d.gamma1_below_4_3_zones[0];
+  const double half = 0.05 * (4.0 / 3.0 - 1.2) / (5.0 / 3.0 - 1.2);
+  // The mesh has points at x = k/400; the dip is linear between points, so crossings are exact.
+  CHECK(z.r_inner_cm / c::R_sun == doctest::Approx(0.7 - half).epsilon(1e-9));
+  CHECK(z.r_outer_cm / c::R_sun == doctest::Approx(0.7 + half).epsilon(1e-9));
+  CHECK(z.gamma1_min == doctest::Approx(1.2));
+  CHECK(z.m_inner_g > 0.0);
+  CHECK(z.m_outer_g > z.m_inner_g);
+  CHECK(z.m_outer_g < c::M_sun);
+  CHECK(d.gamma1_min == doctest::Approx(1.2));
+  CHECK(d.gamma1_min_r_cm / c::R_sun == doctest::Approx(0.7));
+  CHECK(d.gamma1_pressure_weighted > 4.0 / 3.0);
+  CHECK(d.sigma2_homologous > 0.0);
+}
+
+TEST_CASE("hydrostatic residual finds a perturbed point and names its line") {
+  StellarModel model = polytrope_model(1.5, 201, c::M_sun, c::R_sun, 5.0 / 3.0);
+  model.source = "star.txt";
+  model.line.resize(model.size());
+  for (std::size_t i = 0; i < model.size(); ++i) model.line[i] = i + 12;
+  const ModelDiagnostics clean = diagnose(model);
+  CHECK(clean.hse_residual_max < 1e-2);
+  const std::size_t k = 120;
+  model.P[k] *= 1.05; // a 5 % pressure error at one point
+  const ModelDiagnostics d = diagnose(model);
+  CHECK(d.hse_residual_max > 0.1);
+  // The worst residual sits at or next to the perturbed point.
+  CHECK(d.hse_worst_index + 1 >= k);
+  CHECK(d.hse_worst_index <= k + 1);
+  CHECK(d.hse_worst_line == d.hse_worst_index + 12);
+  bool warned = false;
+  for (const auto& w : d.warnings)
+    if (w.code == "hse_residual") {
+      warned = true;
+      CHECK(w.message.find("star.txt line") != std::string::npos);
+    }
+  CHECK(warned);
+}
+
+TEST_CASE("mass inconsistency is reported") {
+  StellarModel model = uniform_sphere_model(201, c::M_sun, c::R_sun, 5.0 / 3.0);
+  CHECK(diagnose(model).mass_consistency < 1e-4);
+  for (auto& rho : model.rho) rho *= 1.1; // the density no longer integrates to m
+  const ModelDiagnostics d = diagnose(model);
+  CHECK(d.mass_consistency == doctest::Approx(0.1).epsilon(1e-3));
+  bool warned = false;
+  for (const auto& w : d.warnings) warned = warned || w.code == "mass_inconsistent";
+  CHECK(warned);
+}
+
+TEST_CASE("envelope model without centre is flagged") {
+  StellarModel model = polytrope_model(3.0, 401, c::M_sun, c::R_sun, 5.0 / 3.0);
+  for (auto* v : {&model.r, &model.m, &model.P, &model.rho, &model.gamma1})
+    v->erase(v->begin(), v->begin() + 40);
+  const ModelDiagnostics d = diagnose(model);
+  CHECK_FALSE(d.has_centre);
+  bool warned = false;
+  for (const auto& w : d.warnings) warned = warned || w.code == "no_centre";
+  CHECK(warned);
+  CHECK(d.mass_consistency < 1e-3);
+  CHECK(d.hse_residual_max < 1e-2);
+}
+
+TEST_CASE("invalid options are usage errors naming the option") {
+  const StellarModel model = uniform_sphere_model(50, c::M_sun, c::R_sun, 5.0 / 3.0);
+  DiagnosticsOptions opt;
+  opt.hse_warn = -1;
+  CHECK_THROWS_WITH_AS(diagnose(model, opt), doctest::Contains("hse_warn"), UsageError);
+  opt = {};
+  opt.hse_pressure_floor = 1.5;
+  CHECK_THROWS_WITH_AS(diagnose(model, opt), doctest::Contains("hse_pressure_floor"), UsageError);
+}

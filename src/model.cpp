@@ -78,9 +78,13 @@ void validate_model(const StellarModel& model) {
     if (model.m[i] < 0.0)
       throw InputError(ErrorKind::not_positive, where(model, i, "m"),
                        point_text(model, i) + "expected m >= 0");
-    if (!(model.rho[i] > 0.0))
+    // rho = 0 is allowed only at a zero-pressure surface (last point, P = 0): the exact
+    // surface of a polytrope of index n > 0.
+    const bool zero_surface = i + 1 == n && model.P[i] == 0.0 && model.rho[i] == 0.0;
+    if (!(model.rho[i] > 0.0) && !zero_surface)
       throw InputError(ErrorKind::not_positive, where(model, i, "rho"),
-                       point_text(model, i) + "expected rho > 0");
+                       point_text(model, i) +
+                           "expected rho > 0 (rho = 0 only at a surface point with P = 0)");
     if (!(model.gamma1[i] > 0.0))
       throw InputError(ErrorKind::not_positive, where(model, i, "Gamma1"),
                        point_text(model, i) + "expected Gamma1 > 0");

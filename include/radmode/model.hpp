@@ -5,6 +5,8 @@
 //  - points run centre-first: r is non-decreasing; r[0] >= 0; r.back() = R is the surface;
 //    a radius may repeat once (composition discontinuity: two rows with the same r);
 //  - m is non-decreasing with m.back() = M; P >= 0; rho > 0; gamma1 > 0; all finite;
+//    except that rho = 0 is allowed at the last point when P = 0 there too (the exact
+//    surface of a polytrope of index n > 0, as the generators write it);
 //  - at least min_points points.
 // Optional columns are empty vectors when the table did not provide them.
 

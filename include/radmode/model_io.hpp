@@ -82,16 +82,21 @@ std::optional<double> parse_number(std::string_view token) noexcept;
 //
 // format_model writes the native format so that parse_model(format_model(m)) reproduces m
 // (every double bit for bit, metadata, extra columns; `line` becomes the new file lines):
+//   0. a comment line `# radmode model table`;
 //   1. one `# key = value` line per metadata entry, in order;
 //   2. one header line: `r m P rho Gamma1`, then those of `T L nabla_ad u` that are present,
 //      then the extra column names; all values in cgs (no bracketed units);
 //   3. one row per point, centre-first, fields separated by spaces, each number in a form
-//      that reads back to the same double (shortest round-trip or %.17g).
+//      that reads back to the same double (%.17g).
+// The model must pass validate_model() (so no NaN or infinity is ever written); metadata keys
+// must be non-empty without whitespace, '=' or '#', values single-line, extra column names
+// without whitespace, ',' or '#'; otherwise Error(bad_format).
 
 /// The model as native-format text (see above).
 std::string format_model(const StellarModel& model);
 
-/// Writes format_model(model) to `path` atomically (temp file + rename, output.hpp).
+/// Writes format_model(model) to `path` atomically (temp file + rename, output.hpp); "-" is
+/// standard output.
 /// Throws Error(ErrorKind::io) naming the path on failure.
 void write_model(const StellarModel& model, const std::string& path);
 

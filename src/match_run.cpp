@@ -77,8 +77,17 @@ MatchRow evaluate_match(const StellarModel& model, const ObservationSet& observa
 std::vector<MatchRow> rank_rows(std::vector<MatchRow> rows, int top) {
   std::vector<MatchRow> good, bad;
   for (auto& r : rows) (r.ok() ? good : bad).push_back(std::move(r));
-  std::stable_sort(good.begin(), good.end(), [](const MatchRow& a, const MatchRow& b) {
-    if (a.chi2() != b.chi2()) return a.chi2() < b.chi2();
+  // chi^2 compared to 9 significant digits, so that models equal but for round-off (e.g. the
+  // same structure at several radii after --fit-radius) keep their input order.
+  auto key = [](double chi2) {
+    std::ostringstream s;
+    s.precision(9);
+    s << chi2;
+    return std::stod(s.str());
+  };
+  std::stable_sort(good.begin(), good.end(), [&](const MatchRow& a, const MatchRow& b) {
+    const double ka = key(a.chi2()), kb = key(b.chi2());
+    if (ka != kb) return ka < kb;
     return a.index < b.index;
   });
   std::stable_sort(bad.begin(), bad.end(),

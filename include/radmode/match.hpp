@@ -209,7 +209,7 @@ struct MatchRow {
 MatchRow evaluate_match(const StellarModel& model, const ObservationSet& observations,
                         const MatchOptions& options);
 
-/// Successful rows by increasing chi^2 (ties by index), cut to options.top, then the failed
+/// Successful rows by increasing chi^2 (to 9 digits; ties by index), cut to `top`, then the failed
 /// rows in input order.
 std::vector<MatchRow> rank_rows(std::vector<MatchRow> rows, int top);
 

@@ -79,15 +79,25 @@ def main():
                 ys.append(p[hi] / p[lo])
                 names.append(entry["model"])
         ax1.scatter(xs, ys, s=30, c="tab:blue", label="models", zorder=2)
-        for x, y, n in zip(xs, ys, names):
+        for i, (x, y, n) in enumerate(zip(xs, ys, names)):
+            # Alternate above/below and slant the names so that close models stay legible.
+            below = i % 2 == 1
             ax1.annotate(n.split("/")[-1].rsplit(".", 1)[0], (x, y), fontsize=7,
-                         xytext=(4, 3), textcoords="offset points", color="tab:blue")
+                         xytext=(3, -6 if below else 5), textcoords="offset points",
+                         rotation=-35 if below else 35, color="tab:blue",
+                         va="top" if below else "bottom")
+        if (lo, hi) == (0, 1):
+            # Observed double-mode pulsators (common practice; Alcock et al. 1995 Cepheids,
+            # Soszynski et al. 2016 RRd, delta Scuti about 0.77 from memory).
+            ax1.axhspan(0.70, 0.77, color="0.85", zorder=0,
+                        label="double-mode pulsators, P1/P0 0.70-0.77")
         p_lo, s_lo = obs_by_order[lo]
         p_hi, s_hi = obs_by_order[hi]
         ratio = p_hi / p_lo
         s_ratio = ratio * ((s_lo / p_lo) ** 2 + (s_hi / p_hi) ** 2) ** 0.5
         ax1.errorbar([p_lo], [ratio], xerr=[s_lo], yerr=[s_ratio], fmt="*", ms=14,
                      color="tab:red", label=star, zorder=3)
+        ax1.margins(0.08, 0.18)
         ax1.set_xlabel(f"P{lo} ({label(lo)}) [d]")
         ax1.set_ylabel(f"P{hi}/P{lo}  ({label(hi)}/{label(lo)})")
         ax1.set_title("Period ratio" + (" (models at fitted radius)"

@@ -21,8 +21,8 @@ contains() { grep -qF -- "$2" "$1"; }
 
 # Uniform sphere in the native table format (cgs), N points uniform in r.
 # P = (2 pi/3) G rho^2 R^2 (1 - x^2), m = M x^3 (physics.md section 6).
-sphere() { # sphere FILE RADIUS_RSUN N
-  awk -v rr="$2" -v n="$3" 'BEGIN {
+sphere() { # sphere FILE RADIUS_RSUN N [GAMMA1]
+  awk -v rr="$2" -v n="$3" -v g1="${4:-1.6666666666666667}" 'BEGIN {
     G = 6.67430e-8; M = 1.3271244e26 / G; R = 6.957e10 * rr; pi = 3.14159265358979;
     rho = 3 * M / (4 * pi * R^3);
     printf "# test uniform sphere, R = %s Rsun\n", rr;
@@ -30,7 +30,7 @@ sphere() { # sphere FILE RADIUS_RSUN N
     for (i = 0; i < n; i++) {
       x = i / (n - 1);
       printf "%.17g %.17g %.17g %.17g %.17g\n", x * R, M * x^3,
-             (2 * pi / 3) * G * rho^2 * R^2 * (1 - x^2), rho, 5 / 3;
+             (2 * pi / 3) * G * rho^2 * R^2 * (1 - x^2), rho, g1;
     }
   }' > "$1"
 }
@@ -109,6 +109,21 @@ check "uHz / c/d input gives the chi^2 of day input ($c_d vs $c_f)" \
 "$radmode" match "$tmp/grid/u1.50.txt" --period "${p0}d+-0.0001" --period "${p1}d+-0.0001:2O" \
   > "$tmp/out" 2>&1
 check "label 2O is kept even though 1O fits" grep -qE '^1 .*F\([-+0-9.]+\) 2O\(' "$tmp/out"
+
+# --- an unstable fundamental is not matched, and the report says so -------------------------
+# Gamma1 = 1.3 < 4/3: omega0^2 = (3 Gamma1 - 4) GM/R^3 < 0 (classical; Ledoux, Sterne 1937).
+sphere "$tmp/unstable.txt" 1.5 400 1.3
+"$radmode" match "$tmp/unstable.txt" --period "${p1}d+-0.001" > "$tmp/out" 2>&1
+check "unstable model still runs" test $? -eq 0
+check "the unstable F is listed as not matched" grep -qE 'not matched: F: omega\^2 <= 0' "$tmp/out"
+check "... and the observation goes to an overtone" grep -qE '^1 .*unstable\.txt  1O\(' "$tmp/out"
+"$radmode" match "$tmp/unstable.txt" --period "${p0}d+-0.001:F" > "$tmp/out" 2>&1
+check "a label on the unstable F makes a failure row (exit 21)" test $? -eq 21
+check "... saying why" grep -qE 'failed .*no_assignment: .*labelled F but that mode is excluded' "$tmp/out"
+
+"$radmode" match "$tmp/grid/u1.50.txt" --observed "$tmp/none_such.txt" > /dev/null 2> "$tmp/err"
+check "a missing observation file exits 3 naming it" test $? -eq 3
+check "... naming it" contains "$tmp/err" "none_such.txt"
 
 # --- failures: bad model row, exit 21; bad observations, nothing written ------------------
 sphere "$tmp/grid/bad.txt" 1.3 100

@@ -2,11 +2,11 @@
 
 #include "radmode/constants.hpp"
 #include "radmode/error.hpp"
+#include "text_format.hpp"
 
 #include <algorithm>
 #include <cmath>
 #include <limits>
-#include <sstream>
 
 namespace radmode {
 
@@ -16,12 +16,7 @@ using constants::G;
 using constants::pi;
 constexpr double four_thirds = 4.0 / 3.0;
 
-std::string num(double x) {
-  std::ostringstream s;
-  s.precision(4);
-  s << x;
-  return s.str();
-}
+std::string num(double x) { return detail::sig(x, 4); }
 
 void require_positive(const char* name, double v) {
   if (!(v > 0.0) || !std::isfinite(v))
@@ -49,12 +44,27 @@ std::size_t distinct_after(const std::vector<double>& x, std::size_t i) {
   return npos;
 }
 
-/// Relative HSE residual at point i with the derivative of y with respect to x (distinct
-/// neighbours), against `target` (the exact dy/dx in equilibrium, < 0). NaN when unavailable.
+/// Smallest change of P (and, for the mass form, of m) relative to the value at the point that
+/// the HSE stencil must span on each side: a table printed with 6 significant digits still
+/// gives such differences to 1 %.
+constexpr double hse_min_relative_change = 1e-4;
+
+/// Relative HSE residual at point i with the derivative of y (the pressure) with respect to x
+/// over neighbours a < i < b, against `target` (the exact dy/dx in equilibrium, < 0). The
+/// neighbours start as the nearest points with distinct x and move outwards while
+/// `too_close(j)` says the difference between points j and i is not resolved by the table's
+/// digits (near the centre of a finely meshed model P hardly changes between points; in the
+/// envelope m does not). NaN when there is no such stencil or `resolved(a, b)` says the
+/// stencil cannot resolve the profile.
+template <class TooClose, class Resolved>
 double residual_form(const std::vector<double>& x, const std::vector<double>& y, std::size_t i,
-                     double target) {
-  const std::size_t a = distinct_before(x, i), b = distinct_after(x, i);
+                     double target, TooClose too_close, Resolved resolved) {
+  std::size_t a = distinct_before(x, i), b = distinct_after(x, i);
   if (a == npos || b == npos || !(target < 0.0)) return std::numeric_limits<double>::quiet_NaN();
+  while (too_close(a) && a > 0) --a;
+  while (too_close(b) && b + 1 < y.size()) ++b;
+  if (too_close(a) || too_close(b) || x[a] == x[i] || x[b] == x[i] || !resolved(a, b))
+    return std::numeric_limits<double>::quiet_NaN();
   const double d = derivative3(x[a], x[i], x[b], y[a], y[i], y[b]);
   return std::abs(d - target) / std::abs(target);
 }
@@ -253,8 +263,19 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
       const double g_rho = G * m[i] * rho[i] / (r[i] * r[i]);
       const double target_s = -3.0 * G * std::cbrt(std::pow(m[i], 4)) /
                               (8.0 * pi * std::pow(r[i], 4));
-      const double by_r = residual_form(r, P, i, -g_rho);
-      const double by_m = residual_form(s, P, i, target_s);
+      const double eps = hse_min_relative_change;
+      auto p_too_close = [&](std::size_t j) { return std::abs(P[j] - P[i]) < eps * P[i]; };
+      // Radius form: only where P changes by less than a factor 2 across the stencil (next to
+      // a power-law zero of P the three-point difference has an O(1) error).
+      const double by_r = residual_form(r, P, i, -g_rho, p_too_close,
+                                        [&](std::size_t a, std::size_t b) {
+                                          return std::min(P[a], P[b]) >= 0.5 * std::max(P[a], P[b]);
+                                        });
+      // Mass form: the mass differences must be resolved as well.
+      const double by_m = residual_form(
+          s, P, i, target_s,
+          [&](std::size_t j) { return p_too_close(j) || std::abs(m[j] - m[i]) < eps * m[i]; },
+          [](std::size_t, std::size_t) { return true; });
       double res;
       if (std::isnan(by_r) && std::isnan(by_m)) {
         ++d.hse_points_skipped;
@@ -332,9 +353,10 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
   if (!std::isfinite(d.t_sound_s))
     warn(d, "sound_time_infinite",
          "the sound speed vanishes on two adjacent points; the sound-crossing time is infinite");
-  if (d.gamma1_pressure_weighted < four_thirds)
+  // (a relative 1e-12 below 4/3 is rounding in the averages of a Gamma1 = 4/3 table)
+  if (d.gamma1_pressure_weighted < four_thirds * (1.0 - 1e-12))
     warn(d, "gamma1_mean_below_4_3",
-         "pressure-weighted <Gamma1> = " + num(d.gamma1_pressure_weighted) +
+         "pressure-weighted <Gamma1> = " + detail::sig(d.gamma1_pressure_weighted, 7) +
              " < 4/3: sufficient for dynamical instability");
   if (d.compactness > options.compactness_warn)
     warn(d, "compactness_high",
@@ -413,6 +435,75 @@ void write_diagnostics_json(JsonWriter& j, const ModelDiagnostics& d) {
   j.field("pn_coefficient_model_energy", d.pn_coefficient_model_energy);
   j.field("gamma1_critical_pn", d.gamma1_critical_pn);
   j.field("pn_unstable", d.pn_unstable);
+}
+
+void write_diagnostics_text(std::ostream& out, const ModelDiagnostics& d) {
+  using detail::sig;
+  const double R = d.radius_cm, M = d.mass_g;
+  auto line = [&](const char* label, const std::string& value) {
+    std::string l = "  ";
+    l += label;
+    if (l.size() < 38) l.append(38 - l.size(), ' ');
+    out << l << value << "\n";
+  };
+  auto time = [](double t) {
+    return sig(t) + " s = " + sig(t / constants::hour_s) + " h" +
+           (t >= constants::day_s ? " = " + sig(t / constants::day_s) + " d" : std::string());
+  };
+  out << "Model\n";
+  line("points", std::to_string(d.points) + (d.has_centre ? " (centre included)"
+                                                          : " (envelope: no point at r = 0)"));
+  line("mass M", sig(M, 6) + " g = " + sig(M / constants::M_sun, 6) + " Msun");
+  line("radius R", sig(R, 6) + " cm = " + sig(R / constants::R_sun, 6) + " Rsun");
+  line("mean density", sig(d.mean_density_g_cm3, 6) + " g cm^-3");
+  line(d.has_centre ? "central density" : "innermost density",
+       sig(d.rho_c_g_cm3, 6) + " g cm^-3 (rho_c / mean = " + sig(d.rho_c_over_mean, 6) + ")");
+  line("surface pressure", sig(d.surface_pressure) + " dyn cm^-2");
+  out << "Time scales\n";
+  line("dynamical (G rho_mean)^-1/2", time(d.t_dyn_s));
+  line("Kepler (R^3/GM)^1/2", time(d.t_kepler_s));
+  line("free fall (3pi/32G rho_mean)^1/2", time(d.t_freefall_s));
+  line("sound crossing int dr/c_s", time(d.t_sound_s));
+  out << "Consistency checks\n";
+  if (d.hse_points_checked > 0) {
+    std::string where = "worst at r/R = " + sig(d.hse_worst_r_cm / R) + " (m/M = " +
+                        sig(d.hse_worst_m_g / M) + ", " +
+                        (d.hse_worst_line > 0 ? "line " + std::to_string(d.hse_worst_line)
+                                              : "point " + std::to_string(d.hse_worst_index + 1)) +
+                        ")";
+    line("hydrostatic residual (max)", sig(d.hse_residual_max, 3) + ", " + where);
+    line("", std::to_string(d.hse_points_checked) + " interior points checked, " +
+                 std::to_string(d.hse_points_skipped) + " skipped");
+  } else {
+    line("hydrostatic residual (max)", "not checked (no usable interior point)");
+  }
+  line("mass: m(R) vs int 4pi r^2 rho dr", sig(d.mass_consistency, 3) + " (relative)");
+  out << "Gamma1 criterion (homologous)\n";
+  line("<Gamma1> pressure-weighted", sig(d.gamma1_pressure_weighted, 7));
+  line("minimum Gamma1", sig(d.gamma1_min, 7) + " at r/R = " + sig(d.gamma1_min_r_cm / R));
+  if (d.gamma1_below_4_3_zones.empty()) line("zones with Gamma1 < 4/3", "none");
+  for (const auto& z : d.gamma1_below_4_3_zones)
+    line("zone with Gamma1 < 4/3",
+         "r/R " + sig(z.r_inner_cm / R) + " - " + sig(z.r_outer_cm / R) + " (r " +
+             sig(z.r_inner_cm) + " - " + sig(z.r_outer_cm) + " cm), m/M " +
+             sig(z.m_inner_g / M) + " - " + sig(z.m_outer_g / M) + ", min Gamma1 " +
+             sig(z.gamma1_min, 5));
+  line("sigma_hom^2 = w_hom^2 R^3/(GM)", sig(d.sigma2_homologous, 6) + " (w_hom^2 = " +
+                                                sig(d.omega2_homologous) + " s^-2)");
+  out << "Relativity (first post-Newtonian)\n";
+  line("compactness 2GM/(Rc^2)", sig(d.compactness));
+  line("structure coefficient K",
+       sig(d.pn_coefficient, 5) + (d.pn_energy == PnEnergy::model
+                                       ? " (model internal energy)"
+                                       : " (u = 3P/rho; with the model's u: " +
+                                             sig(d.pn_coefficient_model_energy, 5) + ")"));
+  line("critical Gamma1 4/3 + K 2GM/(Rc^2)", sig(d.gamma1_critical_pn, 8));
+  if (d.warnings.empty()) {
+    out << "Warnings: none\n";
+  } else {
+    out << "Warnings (" << d.warnings.size() << ")\n";
+    for (const auto& w : d.warnings) out << "  WARNING [" << w.code << "] " << w.message << "\n";
+  }
 }
 
 } // namespace radmode

@@ -64,8 +64,8 @@ struct ScaleUnit {
 };
 
 const ScaleUnit scale_units[] = {
-    {"cgs", not_a_quantity, 1.0},      {"cm", 0, 1.0}, {"km", 0, 1.0e5},
-    {"Rsun", 0, constants::R_sun},     {"g", 1, 1.0},  {"Msun", 1, constants::M_sun},
+    {"cgs", not_a_quantity, 1.0},  {"cm", 0, 1.0}, {"km", 0, 1.0e5},
+    {"Rsun", 0, constants::R_sun}, {"g", 1, 1.0},  {"Msun", 1, constants::M_sun},
     {"Lsun", 6, constants::L_sun}};
 
 /// Parses a unit string for quantity q; on failure returns nullopt and sets `why`.
@@ -124,7 +124,8 @@ bool is_blank_char(char c) {
 /// Splits a line into fields (separators: whitespace and commas; `#` ends the line).
 class FieldCursor {
 public:
-  explicit FieldCursor(std::string_view line) : m_p(line.data()), m_end(line.data() + line.size()) {}
+  explicit FieldCursor(std::string_view line)
+      : m_p(line.data()), m_end(line.data() + line.size()) {}
   bool next(std::string_view& field) {
     while (m_p < m_end && is_blank_char(*m_p)) ++m_p;
     if (m_p == m_end || *m_p == '#') return false;
@@ -149,9 +150,9 @@ LineType classify(std::string_view line) {
   return LineType::blank;
 }
 
+/// Metadata keys: any run of characters other than blanks, `=` and `#`.
 bool is_key_char(char c) {
-  return (c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') ||
-         c == '_' || c == '.' || c == '-';
+  return c != ' ' && c != '\t' && c != '\r' && c != '\v' && c != '\f' && c != '=' && c != '#';
 }
 
 /// `# key = value` -> (key, value); other comments -> nullopt.
@@ -248,8 +249,8 @@ void TableReader::set_up_native(std::string_view header) {
     if (parse_number(field))
       throw InputError(ErrorKind::missing_column, at(m_line_no, column),
                        "expected a header line of column names (required: r m P rho Gamma1), "
-                       "found the number '" + name +
-                           "'; a table without a header needs a column map (--columns)");
+                       "found the number '" +
+                           name + "'; a table without a header needs a column map (--columns)");
     const std::size_t q = quantity_index(base);
     Target target;
     if (q == not_a_quantity) {
@@ -299,8 +300,8 @@ void TableReader::set_up_mapped(std::string_view first, bool& first_is_data) {
     std::string_view field;
     while (cur.next(field)) fields.push_back(field);
   }
-  const bool all_numbers =
-      std::all_of(fields.begin(), fields.end(), [](std::string_view f) { return bool(parse_number(f)); });
+  const bool all_numbers = std::all_of(fields.begin(), fields.end(),
+                                       [](std::string_view f) { return bool(parse_number(f)); });
   const bool by_name_needed =
       std::any_of(m_options.columns.begin(), m_options.columns.end(),
                   [](const auto& c) { return !is_column_number(c.second.source); });
@@ -330,8 +331,8 @@ void TableReader::set_up_mapped(std::string_view first, bool& first_is_data) {
         }
       if (column == 0)
         throw InputError(ErrorKind::missing_column, at(m_line_no, 0, qname),
-                         "the column map reads " + qname + " from a column named '" +
-                             spec.source + "', but the header line has no such column");
+                         "the column map reads " + qname + " from a column named '" + spec.source +
+                             "', but the header line has no such column");
     }
     Target& target = m_targets[column - 1];
     if (target.slot != ignored)
@@ -407,11 +408,19 @@ StellarModel TableReader::read() {
   bool set_up = false;
   while (next_line(line)) {
     switch (classify(line)) {
-    case LineType::blank: continue;
-    case LineType::comment:
-      if (auto kv = metadata_of(line)) m_metadata.push_back(std::move(*kv));
+    case LineType::blank:
       continue;
-    case LineType::content: break;
+    case LineType::comment:
+      if (auto kv = metadata_of(line)) {
+        if (kv->second.find('\r') != std::string::npos)
+          throw InputError(ErrorKind::bad_format, at(m_line_no),
+                           "metadata value of '" + kv->first +
+                               "' holds a carriage return; expected one line of text");
+        m_metadata.push_back(std::move(*kv));
+      }
+      continue;
+    case LineType::content:
+      break;
     }
     if (!set_up) {
       set_up = true;
@@ -451,7 +460,8 @@ StellarModel TableReader::assemble() {
   }
   // Surface-first tables become centre-first (line numbers travel with their points).
   if (model.r.size() >= 2 && model.r.front() > model.r.back()) {
-    for (const auto& q : quantities) std::reverse((model.*q.member).begin(), (model.*q.member).end());
+    for (const auto& q : quantities)
+      std::reverse((model.*q.member).begin(), (model.*q.member).end());
     for (auto& e : model.extra) std::reverse(e.second.begin(), e.second.end());
     std::reverse(model.line.begin(), model.line.end());
   }
@@ -578,8 +588,7 @@ StellarModel read_model(const std::string& path, const ReadOptions& options) {
   Location loc;
   loc.file = path;
   std::FILE* f = std::fopen(path.c_str(), "rb");
-  if (!f)
-    throw InputError(ErrorKind::io, loc, std::string("cannot open: ") + std::strerror(errno));
+  if (!f) throw InputError(ErrorKind::io, loc, std::string("cannot open: ") + std::strerror(errno));
   std::unique_ptr<std::FILE, int (*)(std::FILE*)> guard(f, &std::fclose);
   struct stat st {};
   if (::fstat(::fileno(f), &st) != 0)

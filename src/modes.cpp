@@ -24,11 +24,22 @@ std::vector<double> node_derivative(const std::vector<double>& r, const std::vec
   std::vector<double> d(n, 0.0);
   if (n < 2) return d;
   const auto slope = [&](std::size_t e) { return (xi[e + 1] - xi[e]) / (r[e + 1] - r[e]); };
+  // Derivative at node i of the parabola through nodes i, j, k (second order, any spacing):
+  // the slopes of the two chords combined as for an interior node, extrapolated to i.
+  const auto end_derivative = [&](std::size_t i, std::size_t j, std::size_t k) {
+    const double hj = r[j] - r[i];
+    const double hk = r[k] - r[i];
+    const double sj = (xi[j] - xi[i]) / hj;
+    const double sk = (xi[k] - xi[i]) / hk;
+    return (sj * hk - sk * hj) / (hk - hj);
+  };
   for (std::size_t i = 0; i < n; ++i) {
-    if (i == 0) {
+    if (n == 2) {
       d[i] = slope(0);
+    } else if (i == 0) {
+      d[i] = end_derivative(0, 1, 2);
     } else if (i + 1 == n) {
-      d[i] = slope(n - 2);
+      d[i] = end_derivative(n - 1, n - 2, n - 3);
     } else {
       const double hl = r[i] - r[i - 1];
       const double hr = r[i + 1] - r[i];
@@ -119,11 +130,14 @@ ModeReport make_mode_report(const StellarModel& model, const ModeSet& set,
     q.trusted = sol.trusted;
     q.flag = sol.flag;
     q.error_estimate_s2 = sol.error_estimate;
-    if (sol.omega2 != 0.0) q.error_estimate_rel = sol.error_estimate / std::fabs(sol.omega2);
+    if (sol.omega2 != 0.0 && options.richardson)
+      q.error_estimate_rel = sol.error_estimate / std::fabs(sol.omega2);
     q.sign_uncertain = std::fabs(sol.omega2) <= sol.error_estimate;
     q.stable = sol.omega2 > 0.0;
 
-    if (sol.omega2 > 0.0) {
+    if (q.sign_uncertain) {
+      // Neither a period nor a growth time: the mode may be either.
+    } else if (sol.omega2 > 0.0) {
       const double omega = std::sqrt(sol.omega2);
       const double period = 2.0 * pi / omega;
       q.period_s = period;
@@ -178,6 +192,7 @@ ModeReport make_mode_report(const StellarModel& model, const ModeSet& set,
             (c.gamma1 * compression - 4.0 * G * c.m * c.rho * r[i] * xi[i] * xi[i]) * to_dimless);
         prof.gamma1_kernel.push_back(compression * to_dimless);
       }
+      if (regular_surface) prof.surface_dP_P_condition = -(4.0 + q.sigma2) * xi.back();
     }
     report.modes.push_back(std::move(q));
     report.profiles.push_back(std::move(prof));
@@ -189,8 +204,8 @@ ModeReport make_mode_report(const StellarModel& model, const ModeSet& set,
   if (fundamental == report.modes.end()) {
     report.period_ratio_note = "no period ratios: the fundamental mode is not among the modes";
   } else if (!fundamental->period_s) {
-    report.period_ratio_note = "no period ratios: the fundamental mode is not oscillatory "
-                               "(omega^2 <= 0)";
+    report.period_ratio_note = "no period ratios: the fundamental mode has no established "
+                               "period (omega^2 <= 0, or within its error estimate)";
   } else {
     for (const ModeQuantities& q : report.modes)
       if (q.order > 0 && q.period_s)
@@ -292,6 +307,10 @@ std::string format_profiles(const ModeReport& report, const std::string& model_s
     << "order,label,r_over_R,m_over_M,xi,dP_P,drho_rho," << (has_dT ? "dT_T," : "")
     << "weight,gamma1_kernel\n";
   for (const ModeProfile& p : report.profiles) {
+    if (p.surface_dP_P_condition && !p.dP_P.empty())
+      s << "# " << p.label << ": dP_P at R = " << JsonWriter::number(p.dP_P.back())
+        << "; the regular surface condition gives -(4 + sigma^2) xi(R) = "
+        << JsonWriter::number(*p.surface_dP_P_condition) << '\n';
     for (std::size_t i = 0; i < p.xi.size(); ++i) {
       s << p.order << ',' << p.label << ',' << JsonWriter::number(p.r_over_R[i]) << ','
         << JsonWriter::number(p.m_over_M[i]) << ',' << JsonWriter::number(p.xi[i]) << ','

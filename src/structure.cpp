@@ -15,6 +15,42 @@ void prepend(std::vector<double>& v, double x) {
   if (!v.empty()) v.insert(v.begin(), x);
 }
 
+// Cubic Hermite basis on t in [0, 1].
+struct Hermite {
+  double h00, h10, h01, h11;   // values
+  double d00, d10, d01, d11;   // d/dt
+};
+Hermite hermite(double t) {
+  const double t2 = t * t, t3 = t2 * t;
+  return {2 * t3 - 3 * t2 + 1, t3 - 2 * t2 + t, -2 * t3 + 3 * t2, t3 - t2,
+          6 * t2 - 6 * t,      3 * t2 - 4 * t + 1, -6 * t2 + 6 * t, 3 * t2 - 2 * t};
+}
+
+/// Fritsch–Carlson: the cubic with end values f0, f1 and end derivatives (per unit t) g0, g1
+/// is monotone when both derivatives share the secant's sign and a^2 + b^2 <= 9.
+bool monotone_cubic(double f0, double f1, double g0, double g1) {
+  const double delta = f1 - f0;
+  if (delta == 0.0) return g0 == 0.0 && g1 == 0.0;
+  const double a = g0 / delta, b = g1 / delta;
+  return a >= 0 && b >= 0 && a * a + b * b <= 9.0;
+}
+
+/// d f/dr at row j from its neighbours inside rows [lo, hi] (three-point, second order,
+/// one-sided at the ends; the secant when the segment has two rows).
+double fd_slope(const std::vector<double>& r, const std::vector<double>& f, std::size_t j,
+                std::size_t lo, std::size_t hi) {
+  if (hi - lo == 1) return (f[hi] - f[lo]) / (r[hi] - r[lo]);
+  std::size_t a = j - 1, b = j, c = j + 1; // centred stencil by default
+  if (j == lo) a = lo, b = lo + 1, c = lo + 2;
+  else if (j == hi) a = hi - 2, b = hi - 1, c = hi;
+  // Derivative at r[j] of the parabola through (a, b, c).
+  const double x = r[j], xa = r[a], xb = r[b], xc = r[c];
+  const double la = ((x - xb) + (x - xc)) / ((xa - xb) * (xa - xc));
+  const double lb = ((x - xa) + (x - xc)) / ((xb - xa) * (xb - xc));
+  const double lc = ((x - xa) + (x - xb)) / ((xc - xa) * (xc - xb));
+  return la * f[a] + lb * f[b] + lc * f[c];
+}
+
 } // namespace
 
 Structure::Structure(const StellarModel& model, InnerCondition inner)
@@ -43,6 +79,31 @@ Structure::Structure(const StellarModel& model, InnerCondition inner)
   m_surface_P = t.P.back();
 
   const std::size_t n = t.r.size();
+  using constants::G;
+  using constants::pi;
+  // Derivatives at every row from the model's own equations: dm/dr = 4 pi r^2 rho and
+  // hydrostatic equilibrium dP/dr = -G m rho / r^2 (0 at r = 0); d ln rho / dr by finite
+  // differences inside each segment between discontinuities (NaN where rho has a zero).
+  std::vector<double> dm(n), dP(n), dlnrho(n, std::nan(""));
+  for (std::size_t j = 0; j < n; ++j) {
+    dm[j] = 4 * pi * t.r[j] * t.r[j] * t.rho[j];
+    dP[j] = t.r[j] > 0 ? -G * t.m[j] * t.rho[j] / (t.r[j] * t.r[j]) : 0.0;
+  }
+  {
+    std::vector<double> lnrho(n, 0.0);
+    for (std::size_t j = 0; j < n; ++j) lnrho[j] = t.rho[j] > 0 ? std::log(t.rho[j]) : 0.0;
+    std::size_t lo = 0;
+    for (std::size_t j = 1; j <= n; ++j) {
+      if (j < n && t.r[j] != t.r[j - 1]) continue;
+      const std::size_t hi = j - 1; // segment [lo, hi]
+      bool positive = true;
+      for (std::size_t k = lo; k <= hi; ++k) positive = positive && t.rho[k] > 0;
+      if (hi > lo && positive)
+        for (std::size_t k = lo; k <= hi; ++k) dlnrho[k] = fd_slope(t.r, lnrho, k, lo, hi);
+      lo = j;
+    }
+  }
+
   m_iv.reserve(n - 1);
   m_node_r.reserve(n);
   m_node_r.push_back(t.r.front());
@@ -56,47 +117,99 @@ Structure::Structure(const StellarModel& model, InnerCondition inner)
     iv.row = j;
     iv.r0 = t.r[j];
     iv.r1 = t.r[j + 1];
-    iv.m0 = t.m[j];
-    iv.m1 = t.m[j + 1];
+    const double h = iv.r1 - iv.r0;
     iv.g0 = t.gamma1[j];
     iv.g1 = t.gamma1[j + 1];
     iv.na0 = m_has_nabla_ad ? t.nabla_ad[j] : 0.0;
     iv.na1 = m_has_nabla_ad ? t.nabla_ad[j + 1] : 0.0;
-    iv.P0 = t.P[j];
-    iv.P1 = t.P[j + 1];
-    iv.log_P = iv.P0 > 0.0 && iv.P1 > 0.0;
-    iv.lnP0 = iv.log_P ? std::log(iv.P0) : 0.0;
-    iv.lnP1 = iv.log_P ? std::log(iv.P1) : 0.0;
-    iv.rho0 = t.rho[j];
-    iv.rho1 = t.rho[j + 1];
-    iv.log_rho = iv.rho0 > 0.0 && iv.rho1 > 0.0;
-    iv.lnrho0 = iv.log_rho ? std::log(iv.rho0) : 0.0;
-    iv.lnrho1 = iv.log_rho ? std::log(iv.rho1) : 0.0;
+    iv.m = {t.m[j], t.m[j + 1], h * dm[j], h * dm[j + 1], Shape::hermite};
+    if (!monotone_cubic(iv.m.f0, iv.m.f1, iv.m.g0, iv.m.g1)) iv.m.shape = Shape::linear;
+    iv.rho = shape_for(t.rho[j], t.rho[j + 1], h * t.rho[j] * dlnrho[j],
+                       h * t.rho[j + 1] * dlnrho[j + 1], nullptr);
+    iv.P = shape_for(t.P[j], t.P[j + 1], h * dP[j], h * dP[j + 1], &iv);
     m_iv.push_back(iv);
     m_node_r.push_back(t.r[j + 1]);
     m_discontinuity.push_back(false);
   }
 }
 
+Structure::Curve Structure::shape_for(double f0, double f1, double g0, double g1,
+                                      const Interval* hse) const {
+  // Candidates: cubic Hermite in log (both ends > 0) and in linear space, each only when its
+  // end derivatives are finite and keep it monotone; else the fallback rule (linear in log
+  // when both ends are > 0, otherwise linear).
+  const bool positive = f0 > 0 && f1 > 0;
+  Curve lin{f0, f1, g0, g1, Shape::hermite};
+  Curve log{0, 0, 0, 0, Shape::log_hermite};
+  const bool lin_ok = std::isfinite(g0) && std::isfinite(g1) && monotone_cubic(f0, f1, g0, g1);
+  bool log_ok = false;
+  if (positive) {
+    log = {std::log(f0), std::log(f1), g0 / f0, g1 / f1, Shape::log_hermite};
+    log_ok = std::isfinite(log.g0) && std::isfinite(log.g1) &&
+             monotone_cubic(log.f0, log.f1, log.g0, log.g1);
+  }
+  if (lin_ok && log_ok && hse) {
+    // Both usable (pressure): take the one closer to hydrostatic equilibrium at the midpoint.
+    const double rm = 0.5 * (hse->r0 + hse->r1), h = hse->r1 - hse->r0;
+    const double m = eval(hse->m, 0.5).first, rho = eval(hse->rho, 0.5).first;
+    const double target = rm > 0 ? -constants::G * m * rho / (rm * rm) : 0.0;
+    const double res_lin = std::abs(eval(lin, 0.5).second / h - target);
+    const double res_log = std::abs(eval(log, 0.5).second / h - target);
+    return res_log <= res_lin ? log : lin;
+  }
+  if (log_ok) return log;
+  if (lin_ok) return lin;
+  if (positive) return {std::log(f0), std::log(f1), 0, 0, Shape::log_linear};
+  return {f0, f1, 0, 0, Shape::linear};
+}
+
+std::pair<double, double> Structure::eval(const Curve& c, double t) {
+  switch (c.shape) {
+  case Shape::linear:
+    return {c.f0 + t * (c.f1 - c.f0), c.f1 - c.f0};
+  case Shape::log_linear: {
+    const double v = std::exp(c.f0 + t * (c.f1 - c.f0));
+    return {v, v * (c.f1 - c.f0)};
+  }
+  case Shape::hermite: {
+    const Hermite b = hermite(t);
+    return {b.h00 * c.f0 + b.h10 * c.g0 + b.h01 * c.f1 + b.h11 * c.g1,
+            b.d00 * c.f0 + b.d10 * c.g0 + b.d01 * c.f1 + b.d11 * c.g1};
+  }
+  case Shape::log_hermite:
+  default: {
+    const Hermite b = hermite(t);
+    const double v = std::exp(b.h00 * c.f0 + b.h10 * c.g0 + b.h01 * c.f1 + b.h11 * c.g1);
+    return {v, v * (b.d00 * c.f0 + b.d10 * c.g0 + b.d01 * c.f1 + b.d11 * c.g1)};
+  }
+  }
+}
+
 StructurePoint Structure::at(std::size_t interval, double t) const {
   const Interval& iv = m_iv[interval];
-  const double s = 1.0 - t;
+  const StellarModel& tb = m_table;
   StructurePoint p;
   // Endpoints exactly reproduce the table rows (no exp(log()) round-off there).
+  const double h = iv.r1 - iv.r0;
+  const auto m = eval(iv.m, t), P = eval(iv.P, t), rho = eval(iv.rho, t);
+  p.dm_dr = m.second / h;
+  p.dP_dr = P.second / h;
+  p.drho_dr = rho.second / h;
   if (t == 0.0 || t == 1.0) {
-    const bool right = t == 1.0;
-    p.r = right ? iv.r1 : iv.r0;
-    p.m = right ? iv.m1 : iv.m0;
-    p.P = right ? iv.P1 : iv.P0;
-    p.rho = right ? iv.rho1 : iv.rho0;
-    p.gamma1 = right ? iv.g1 : iv.g0;
-    p.nabla_ad = right ? iv.na1 : iv.na0;
+    const std::size_t row = t == 1.0 ? iv.row + 1 : iv.row;
+    p.r = tb.r[row];
+    p.m = tb.m[row];
+    p.P = tb.P[row];
+    p.rho = tb.rho[row];
+    p.gamma1 = tb.gamma1[row];
+    p.nabla_ad = m_has_nabla_ad ? tb.nabla_ad[row] : 0.0;
     return p;
   }
+  const double s = 1.0 - t;
   p.r = s * iv.r0 + t * iv.r1;
-  p.m = s * iv.m0 + t * iv.m1;
-  p.P = iv.log_P ? std::exp(s * iv.lnP0 + t * iv.lnP1) : s * iv.P0 + t * iv.P1;
-  p.rho = iv.log_rho ? std::exp(s * iv.lnrho0 + t * iv.lnrho1) : s * iv.rho0 + t * iv.rho1;
+  p.m = m.first;
+  p.P = P.first;
+  p.rho = rho.first;
   p.gamma1 = s * iv.g0 + t * iv.g1;
   p.nabla_ad = s * iv.na0 + t * iv.na1;
   return p;

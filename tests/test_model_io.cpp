@@ -4,6 +4,7 @@
 
 #include "radmode/constants.hpp"
 #include "radmode/error.hpp"
+#include "radmode/generators.hpp"
 #include "support.hpp"
 
 #include <doctest/doctest.h>
@@ -124,6 +125,24 @@ TEST_CASE("native table: values, line numbers, metadata and extra columns") {
   CHECK(model.has_centre());
 }
 
+TEST_CASE("metadata lines: key without blanks, '=' or '#'; other comments ignored") {
+  auto lines = good_lines();
+  lines[0] = "# mass(Msun) = 1.7 ";
+  lines.insert(lines.begin(), {"#x=5", "# Note: a = b", "# ==== banner ====", "  # key2 =  "});
+  lines.push_back("# trailer = after the rows");
+  const auto model = parse_model(join(lines), "meta.txt");
+  using KV = std::pair<std::string, std::string>;
+  const std::vector<KV> expected = {KV{"x", "5"}, KV{"key2", ""}, KV{"mass(Msun)", "1.7"},
+                                    KV{"trailer", "after the rows"}};
+  CHECK(model.metadata == expected);
+
+  // A carriage return inside a value cannot be written back: refused with its line.
+  lines.back() = "# trailer = a\rb";
+  const auto e = parse_error(join(lines));
+  CHECK(e.kind() == ErrorKind::bad_format);
+  CHECK(contains(e.what(), "bad.txt:19: "));
+}
+
 TEST_CASE("surface-first table gives the same centre-first model") {
   const auto p = make_points();
   const auto a = parse_model(native_table(p), "a.txt");
@@ -178,8 +197,8 @@ TEST_CASE("Windows line ends are accepted") {
 
 TEST_CASE("an inner point at r > 0 is kept, a repeated radius is accepted") {
   auto lines = good_lines();
-  lines[2] = "0.5 0.1 100 1.5 1.6";   // first point off-centre
-  lines[7] = "4 16 95 1.2 1.6";        // same r as the previous row: a discontinuity
+  lines[2] = "0.5 0.1 100 1.5 1.6"; // first point off-centre
+  lines[7] = "4 16 95 1.2 1.6";     // same r as the previous row: a discontinuity
   const auto model = parse_model(join(lines), "d.txt");
   CHECK(model.r[0] == 0.5);
   CHECK(!model.has_centre());
@@ -207,8 +226,8 @@ TEST_CASE("foreign table through a column map gives the same model as the native
                   "zone logP radius mass X density G1 lum\n";
   for (std::size_t i = p.r_sun.size(); i-- > 0;)
     t += std::to_string(i + 1) + " " + num(p.logP[i]) + " " + num(p.r_sun[i]) + " " +
-         num(p.m_sun[i]) + " " + num(p.X[i]) + " " + num(p.rho[i]) + " " + num(p.gamma1[i]) +
-         " " + num(p.L_sun[i]) + "\n";
+         num(p.m_sun[i]) + " " + num(p.X[i]) + " " + num(p.rho[i]) + " " + num(p.gamma1[i]) + " " +
+         num(p.L_sun[i]) + "\n";
 
   SUBCASE("by column number") {
     auto opt = parse_column_map("r=3:Rsun, m=4:Msun, P=2:log10, rho=6, Gamma1=7, L=8:Lsun");
@@ -424,4 +443,27 @@ TEST_CASE("parse_number accepts the usual number forms and nothing else") {
   CHECK(std::isnan(*parse_number("nan")));
   for (const char* bad : {"", "+", "+-1", "1e", "1.2.3", "abc", "1,5", "D5", "1D", "0x10", "1e5x"})
     CHECK_MESSAGE(!parse_number(bad), bad);
+}
+
+TEST_CASE("write then read gives back the same model") {
+  SUBCASE("a read table with metadata, optional and extra columns") {
+    const auto p = make_points();
+    const auto a = parse_model(native_table(p), "a.txt");
+    const auto b = parse_model(format_model(a), "b.txt");
+    check_same(a, b);
+    CHECK(a.extra == b.extra);
+    CHECK(a.metadata == b.metadata);
+  }
+  SUBCASE("generated models, through a file") {
+    // The Eddington standard model has T, nabla_ad and u; the polytrope ends at rho = P = 0.
+    test::TempDir dir;
+    for (const auto& model : {make_polytrope(3.0), make_standard_model(), make_uniform()}) {
+      const auto path = dir.file("model.txt");
+      write_model(model, path);
+      const auto back = read_model(path);
+      check_same(model, back);
+      CHECK(model.metadata == back.metadata);
+      CHECK(back.source == path);
+    }
+  }
 }

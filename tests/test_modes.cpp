@@ -7,6 +7,8 @@
 #include "radmode/error.hpp"
 #include "radmode/json.hpp"
 
+#include "analytic_models.hpp"
+
 #include <doctest/doctest.h>
 
 #include <algorithm>
@@ -24,23 +26,14 @@ namespace {
 constexpr double kMass = 2.0e33;  // g (an invented star)
 constexpr double kRadius = 3.0e11; // cm
 
-/// Uniform-density sphere, P = (2 pi/3) G rho^2 R^2 (1 - x^2) (physics.md section 6), on a
-/// non-uniform mesh (denser towards the surface) so the node derivative is really tested.
+/// Uniform-density sphere (tests/support/analytic_models.hpp) on a non-uniform mesh, denser
+/// towards the surface (x = sin(pi t/2)), so the node derivative is really tested.
 StellarModel uniform_sphere(std::size_t n, double gamma1) {
-  StellarModel model;
-  const double rho = 3.0 * kMass / (4.0 * pi * kRadius * kRadius * kRadius);
-  for (std::size_t i = 0; i < n; ++i) {
-    const double t = static_cast<double>(i) / static_cast<double>(n - 1);
-    const double x = std::sin(0.5 * pi * t); // node spacing shrinks towards x = 1
-    model.r.push_back(x * kRadius);
-    model.m.push_back(kMass * x * x * x);
-    model.rho.push_back(rho);
-    model.P.push_back(2.0 * pi / 3.0 * G * rho * rho * kRadius * kRadius * (1.0 - x * x));
-    model.gamma1.push_back(gamma1);
-  }
-  model.P.back() = 0.0;
-  model.source = "analytic uniform sphere";
-  return model;
+  std::vector<double> x;
+  for (std::size_t i = 0; i < n; ++i)
+    x.push_back(std::sin(0.5 * pi * static_cast<double>(i) / static_cast<double>(n - 1)));
+  x.back() = 1.0;
+  return test::uniform_sphere(x, gamma1, kMass, kRadius);
 }
 
 double unit_omega2() { return G * kMass / (kRadius * kRadius * kRadius); }
@@ -168,7 +161,7 @@ TEST_CASE("growing mode: growth rate, e-folding time, no period") {
   CHECK_FALSE(q.frequency_cd);
   CHECK_FALSE(q.Q_d);
   CHECK_FALSE(q.omega_t_dyn);
-  CHECK(rep.period_ratio_note.find("not oscillatory") != std::string::npos);
+  CHECK(rep.period_ratio_note.find("no established period") != std::string::npos);
   CHECK(rep.period_ratios.empty());
 
   // JSON: absent values are null, nothing is NaN.
@@ -195,6 +188,22 @@ TEST_CASE("a mode whose |omega^2| is below its error estimate has an uncertain s
   set.modes[0].error_estimate = 2e-3 * unit_omega2();
   const ModeReport rep = make_mode_report(model, set, SolveOptions{});
   CHECK(rep.modes[0].sign_uncertain);
+  // No period (it might as well grow) and no growth time (it might as well oscillate).
+  CHECK_FALSE(rep.modes[0].period_s);
+  CHECK_FALSE(rep.modes[0].frequency_uHz);
+  CHECK_FALSE(rep.modes[0].growth_rate_s);
+  CHECK(rep.period_ratios.empty());
+}
+
+TEST_CASE("without extrapolation there is no relative error estimate") {
+  // The solver's estimate is then its residual alone, not the discretization error.
+  const StellarModel model = uniform_sphere(50, 5.0 / 3.0);
+  SolveOptions no_extrapolation;
+  no_extrapolation.richardson = false;
+  const ModeReport rep =
+      make_mode_report(model, analytic_modes(model, 5.0 / 3.0), no_extrapolation);
+  CHECK_FALSE(rep.modes[0].error_estimate_rel);
+  CHECK(rep.modes[0].period_s);
 }
 
 TEST_CASE("uniform sphere, analytic F and 1O: inertia, weight function, Gamma1 kernel") {
@@ -247,8 +256,12 @@ TEST_CASE("uniform sphere, analytic F and 1O: inertia, weight function, Gamma1 k
     CHECK(p1.xi[i] == doctest::Approx((1.0 - 1.4 * x * x) / -0.4));
     CHECK(p1.drho_rho[i] == doctest::Approx(7.5 - 17.5 * x * x).epsilon(1e-9));
   }
-  // Surface: regular condition p = -(4 + sigma^2) xi = -10 Gamma1 (one-sided slope there).
-  CHECK(p1.dP_P.back() == doctest::Approx(-10.0 * gamma1).epsilon(1e-2));
+  // Ends: the one-sided three-node derivative is exact for this quadratic xi. Surface:
+  // regular condition p = -(4 + sigma^2) xi = -10 Gamma1; centre: 3 xi + r xi' = 3 xi.
+  CHECK(p1.dP_P.back() == doctest::Approx(-10.0 * gamma1).epsilon(1e-9));
+  CHECK(p1.drho_rho.front() == doctest::Approx(7.5).epsilon(1e-12));
+  REQUIRE(p1.surface_dP_P_condition);
+  CHECK(*p1.surface_dP_P_condition == doctest::Approx(p1.dP_P.back()).epsilon(1e-9));
   // Node at r/R = (5/7)^(1/2) (physics.md section 7).
   for (std::size_t i = 0; i + 1 < p1.xi.size(); ++i)
     if ((p1.xi[i] < 0) != (p1.xi[i + 1] < 0))
@@ -305,6 +318,8 @@ TEST_CASE("surface terms: a truncated model with P_s > 0") {
   const double k_reg = k_fixed - 4.0 * R * R * R * Ps;
   CHECK(*a.modes[0].omega2_rayleigh_s2 == doctest::Approx(k_reg / m_reg).epsilon(1e-12));
   CHECK(*a.modes[0].inertia == doctest::Approx(*b.modes[0].inertia).epsilon(1e-14));
+  CHECK(a.profiles[0].surface_dP_P_condition);
+  CHECK_FALSE(b.profiles[0].surface_dP_P_condition); // only the regular condition prescribes it
 }
 
 TEST_CASE("delta T/T = nabla_ad delta P/P when the model gives nabla_ad") {

@@ -41,14 +41,34 @@ TEST_CASE("rigid inner boundary keeps an envelope as it is") {
   CHECK_THROWS_AS(s.at_radius(0.5 * model.r.front()), Error);
 }
 
-TEST_CASE("interpolation: log-linear P and rho, linear m and Gamma1, linear P to zero") {
+TEST_CASE("cubic interpolation is exact for the uniform sphere, centre extension included") {
+  // P = Pc (1 - x^2) and m = M x^3 are polynomials of degree <= 3 and rho is constant, so the
+  // Hermite cubics with slopes from hydrostatic equilibrium and dm/dr = 4 pi r^2 rho
+  // reproduce them exactly between the table points (physics.md §6 for the model).
+  const auto model = test::uniform_sphere(test::uniform_mesh(20, 0.1), 5.0 / 3.0);
+  const double R = model.radius(), M = model.mass(), rho = model.rho[0];
+  const double Pc = (2.0 * constants::pi / 3.0) * constants::G * rho * rho * R * R;
+  Structure s(model);
+  std::size_t hint = 0;
+  for (int k = 0; k <= 997; ++k) {
+    const double x = k / 997.0;
+    const auto p = s.at_radius(x * R, &hint);
+    CHECK(p.P == doctest::Approx(Pc * (1 - x * x)).epsilon(1e-11).scale(Pc));
+    CHECK(p.m == doctest::Approx(M * x * x * x).epsilon(1e-11).scale(M));
+    CHECK(p.rho == doctest::Approx(rho).epsilon(1e-13));
+  }
+}
+
+TEST_CASE("interpolation fallbacks: log-linear, linear to zero, linear Gamma1 and nabla_ad") {
   StellarModel m;
   for (int i = 0; i < 10; ++i) {
     const double x = i / 9.0;
     m.r.push_back(x);
-    m.m.push_back(x * x * x + 1e-3 * i);
-    m.P.push_back(i == 9 ? 0.0 : std::pow(10.0, -i));
-    m.rho.push_back(std::pow(2.0, -i));
+    // m constant across interval 3: its cubic cannot be monotone -> linear.
+    m.m.push_back(i == 4 ? m.m.back() : x * x * x + 1e-3 * i);
+    // P growing outward contradicts hydrostatic equilibrium -> linear in log; 0 at the surface.
+    m.P.push_back(i == 9 ? 0.0 : std::pow(10.0, i));
+    m.rho.push_back(std::pow(2.0, -i)); // ln rho linear: the log cubic is the log-linear one
     m.gamma1.push_back(1.4 + 0.01 * i);
     m.nabla_ad.push_back(0.4 - 0.001 * i * i);
   }
@@ -57,14 +77,15 @@ TEST_CASE("interpolation: log-linear P and rho, linear m and Gamma1, linear P to
   CHECK(s.has_nabla_ad());
   const auto p = s.at(3, 0.5);
   CHECK(p.r == doctest::Approx(3.5 / 9.0));
-  CHECK(p.P == doctest::Approx(std::sqrt(m.P[3] * m.P[4])).epsilon(1e-13));
-  CHECK(p.rho == doctest::Approx(std::sqrt(m.rho[3] * m.rho[4])).epsilon(1e-13));
-  CHECK(p.m == doctest::Approx(0.5 * (m.m[3] + m.m[4])));
+  CHECK(p.P == doctest::Approx(std::sqrt(m.P[3] * m.P[4])).epsilon(1e-12));
+  CHECK(p.rho == doctest::Approx(std::sqrt(m.rho[3] * m.rho[4])).epsilon(1e-12));
+  CHECK(p.m == doctest::Approx(m.m[3]));
   CHECK(p.gamma1 == doctest::Approx(0.5 * (m.gamma1[3] + m.gamma1[4])));
   CHECK(p.nabla_ad == doctest::Approx(0.5 * (m.nabla_ad[3] + m.nabla_ad[4])));
-  // Zero surface pressure: linear in the last interval.
+  // Zero surface pressure: the cubic in P (not in log) with this table's tiny hydrostatic
+  // slopes, i.e. the Hermite basis value h00(1/4) = 27/32 times P_8.
   const auto q = s.at(8, 0.25);
-  CHECK(q.P == doctest::Approx(0.75 * m.P[8]));
+  CHECK(q.P == doctest::Approx(27.0 / 32.0 * m.P[8]).epsilon(1e-9));
   // Table rows are reproduced exactly at the interval ends.
   for (std::size_t i = 0; i < s.interval_count(); ++i) {
     CHECK(s.at(i, 0.0).P == m.P[i]);

@@ -43,6 +43,8 @@ struct SolveOptions {
   std::optional<double> window_hi_omega2;
   bool richardson = true; ///< solve on the coarse mesh too, extrapolate and estimate the error
 
+  static constexpr int max_count = 10000; ///< upper limit of `count`
+
   /// Throws UsageError naming the option, its value and the allowed range.
   void validate() const;
 };
@@ -60,7 +62,13 @@ struct ModeSolution {
   double omega2_fine = 0;   ///< on the model mesh [s^-2]
   double omega2_coarse = 0; ///< on the every-other-node mesh [s^-2] (= fine if !richardson)
   double error_estimate = 0;///< absolute error estimate of omega2 [s^-2]
-  double residual = 0;      ///< ||K x - w M x|| / (||K x|| + |w| ||M x||), fine mesh
+  /// ||K x - w M x|| / (||K x|| + max(|w|, w_ref) ||M x||) on the fine mesh, w_ref the
+  /// largest |w| among the modes solved together (see PencilEigenpair::residual).
+  double residual = 0;
+  /// Part of error_estimate [s^-2] due to the interpolation of the model between its table
+  /// points: |w(every other row) - w(all rows)|/3 for the fine eigenvector (Rayleigh quotient;
+  /// interpolation error is O(h^2) like the discretization error). 0 when !richardson.
+  double interpolation_error = 0;
 
   /// xi = delta r / r at the FE nodes (ModeSet::node_r), normalized to xi(R) = 1.
   std::vector<double> xi;
@@ -85,5 +93,46 @@ struct ModeSet {
 
 /// Solves for the modes. Throws only for invalid options; numerical trouble is a status.
 ModeSet solve_modes(const StellarModel& model, const SolveOptions& options = {});
+
+// ---- The engine under solve_modes, usable for any symmetric tridiagonal pencil ----------
+// (discretize.hpp builds pencils; the same code solves the stellar problem and, in the tests,
+// plain Sturm–Liouville problems.)
+
+struct TridiagonalPencil; // discretize.hpp
+
+/// Which eigenvalues of K x = lambda M x to compute. Eigenvalue index j counts the
+/// eigenvalues below it (0 = lowest), established by inertia.
+struct PencilRequest {
+  int first = 0; ///< lowest index wanted
+  int count = 5; ///< number of consecutive indices wanted (first .. first + count - 1)
+  /// If both set: every eigenvalue with window_lo <= lambda <= window_hi instead of
+  /// first/count (pencil units).
+  std::optional<double> window_lo, window_hi;
+};
+
+struct PencilEigenpair {
+  double lambda = 0;       ///< Rayleigh quotient x^T K x / x^T M x of the computed vector
+  int index = -1;          ///< number of eigenvalues below lambda (inertia, just below it)
+  int multiplicity = 0;    ///< inertia just above minus just below (1 when simple)
+  /// ||K x - lambda M x|| / (||K x|| + max(|lambda|, lambda_ref) ||M x||), lambda_ref the
+  /// largest |lambda| of the request (so that an eigenvalue at 0 gets a meaningful number).
+  double residual = 0;
+  std::vector<double> x;   ///< eigenvector, x^T M x = 1
+};
+
+struct PencilSpectrum {
+  std::vector<PencilEigenpair> pairs; ///< increasing lambda, one per requested index
+  SolveStatus status = SolveStatus::ok;
+  std::string message;
+  int iterations = 0;  ///< Spectra restarts
+  int recovered = 0;   ///< pairs Spectra missed, found by inertia bisection + inverse iteration
+  double shift = 0;    ///< shift used for the shift-invert solve
+};
+
+/// Computes the requested eigenpairs: shift chosen from inertia counts, Spectra shift-invert
+/// Lanczos with an O(N) tridiagonal LDL^T operator (dense solve for N <= 200), every result
+/// checked by inertia; a missed index is recovered by bisection on the inertia count plus
+/// inverse iteration. Throws UsageError for an invalid request or pencil.
+PencilSpectrum solve_pencil(const TridiagonalPencil& pencil, const PencilRequest& request);
 
 } // namespace radmode

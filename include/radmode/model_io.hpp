@@ -3,8 +3,8 @@
 //
 // Native format (text):
 //   - `#` starts a comment (a whole line, or the rest of a data line);
-//   - `# key = value` lines are metadata (key: letters, digits, `_ . -`), kept in file order in
-//     StellarModel::metadata and passed through to every output;
+//   - `# key = value` lines are metadata (key: no blanks, `=` or `#`; value: rest of the line,
+//     trimmed), kept in file order in StellarModel::metadata and passed through to outputs;
 //   - the first line that is not a comment or blank holds the column names;
 //   - every later non-blank line is one point: numbers separated by whitespace and/or commas
 //     (`1.5e3`, `+2`, Fortran `1.0D+05` all accepted), as many as there are column names;

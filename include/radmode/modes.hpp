@@ -18,7 +18,9 @@
 // element slopes weighted by the opposite element lengths,
 //     xi'_i = (h_{i-1} s_i + h_i s_{i-1}) / (h_{i-1} + h_i),   s_i = slope of element i,
 // which is the second-order three-point derivative on a non-uniform mesh; at the two mesh
-// ends the slope of the end element is used (at r = 0 the term r xi' vanishes anyway).
+// ends it is the derivative of the parabola through the last three nodes (also second order;
+// the end element's own slope would be only first order, which shows as a spurious jump of
+// delta P/P at the surface where xi is steep).
 // Integrals (M[xi], inertia, int w dr) are instead taken element by element with the exact
 // element slope and two-point Gauss-Legendre quadrature, the model coefficients being
 // interpolated at the Gauss points by Structure (structure.hpp: P and rho log-linearly in r,
@@ -61,27 +63,33 @@ struct ModeQuantities {
   double omega2_s2 = 0;     ///< omega^2 [s^-2]
   double sigma2 = 0;        ///< omega^2 R^3/(G M)
 
-  // Oscillatory modes only (omega^2 > 0).
+  // Oscillatory modes only (omega^2 > 0 and the sign established, i.e. !sign_uncertain: a
+  // period of a mode that may as well not oscillate is not reported).
   std::optional<double> period_s, period_h, period_d;
   std::optional<double> frequency_uHz;  ///< cyclic frequency [microHz]
   std::optional<double> frequency_cd;   ///< cyclic frequency [cycles per day]
   std::optional<double> Q_d;            ///< pulsation constant [d]
   std::optional<double> omega_t_dyn;    ///< omega t_dyn (dimensionless)
 
-  // Growing modes only (omega^2 < 0).
+  // Growing modes only (omega^2 < 0 and !sign_uncertain).
   std::optional<double> growth_rate_s;      ///< eta [s^-1]
   std::optional<double> growth_time_s;      ///< e-folding time 1/eta [s]
   std::optional<double> growth_time_t_dyn;  ///< e-folding time in units of t_dyn
 
   std::optional<double> inertia;     ///< E; absent when xi(R) = 0
-  double error_estimate_s2 = 0;      ///< absolute error estimate of omega^2 [s^-2]
-  std::optional<double> error_estimate_rel; ///< error_estimate / |omega^2|; absent if omega^2 = 0
+  /// Absolute error estimate of omega^2 from the solver [s^-2]. Without Richardson
+  /// extrapolation (SolveOptions::richardson = false) it holds only the solver residual, not
+  /// the discretization error: then error_estimate_rel is absent.
+  double error_estimate_s2 = 0;
+  /// error_estimate_s2 / |omega^2|; absent when omega^2 = 0 or without extrapolation.
+  std::optional<double> error_estimate_rel;
   /// Rayleigh quotient K[xi]/M[xi] of the reported eigenfunction = int w dr + surface term
   /// [s^-2]; agrees with omega2_s2 to the discretization error (a consistency check).
   std::optional<double> omega2_rayleigh_s2;
 
   bool stable = true;       ///< omega^2 > 0
   /// |omega^2| is within its error estimate: the sign (stable or not) is not established.
+  /// Period, frequency and growth fields are then all absent.
   bool sign_uncertain = false;
   bool trusted = false;     ///< from the solver: order established both ways, small error
   std::string flag;         ///< why the mode is not trusted (empty when trusted)
@@ -109,6 +117,11 @@ struct ModeProfile {
   /// Gamma1 sensitivity P r^2 (3 xi + r xi')^2 / M[xi], times R/(G M/R^3):
   /// delta sigma^2 = int gamma1_kernel delta Gamma1 d(r/R) at fixed structure.
   std::vector<double> gamma1_kernel;
+  /// With the regular surface condition: the value it prescribes at R, -(4 + sigma^2) xi(R).
+  /// The profile's own dP_P.back() comes from the finite-element xi' and can differ from it
+  /// next to a zero-pressure surface, where the energy form hardly constrains xi' (the
+  /// compression term is weighted by P -> 0); the profiles file states both.
+  std::optional<double> surface_dP_P_condition;
 };
 
 /// Everything reported about a ModeSet.

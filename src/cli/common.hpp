@@ -12,7 +12,7 @@ namespace radmode::cli {
 /// How to read a model table: native format by default, or a foreign table through a column
 /// map (model_io.hpp, docs/table-format.md).
 struct ModelInputOptions {
-  std::string columns; ///< --columns SPEC, e.g. "r=2:Rsun,m=3:Msun,P=5,rho=4,Gamma1=9"
+  std::string columns;  ///< --columns SPEC, e.g. "r=2:Rsun,m=3:Msun,P=5,rho=4,Gamma1=9"
   std::size_t skip = 0; ///< --skip N: leading lines ignored
 };
 

@@ -64,8 +64,8 @@ int main(int argc, char** argv) {
       "r=1:Rsun,m=2:Msun,P=3:log10,rho=4,Gamma1=5,T=6,L=7,nabla_ad=8,u=9");
   map.skip_lines = 3;
   std::printf("table: %zu points x 9 columns; %d repetitions\n", n, reps);
-  std::printf("native, cgs, 8 digits     (%6zu bytes): %8.1f us per parse\n",
-              short_numbers.size(), 1e6 * time_per_parse(short_numbers, {}, reps));
+  std::printf("native, cgs, 8 digits     (%6zu bytes): %8.1f us per parse\n", short_numbers.size(),
+              1e6 * time_per_parse(short_numbers, {}, reps));
   std::printf("native, cgs, 17 digits    (%6zu bytes): %8.1f us per parse\n", native.size(),
               1e6 * time_per_parse(native, {}, reps));
   std::printf("native, solar + log10     (%6zu bytes): %8.1f us per parse\n", solar.size(),

@@ -20,14 +20,16 @@ namespace {
 
 using Bytes = std::vector<std::uint8_t>;
 
-void run_one(const Bytes& input) { LLVMFuzzerTestOneInput(input.data(), input.size()); }
+void run_one(const Bytes& input) {
+  LLVMFuzzerTestOneInput(input.data(), input.size());
+}
 
 /// One random edit: flip, insert, delete, duplicate a range, or splice in a token that the
 /// reader treats specially.
 void mutate(Bytes& b, std::mt19937_64& rng, const std::vector<Bytes>& corpus) {
-  static const char* const tokens[] = {"\n", "#", " = ", ",", "[Rsun]", "[log10]", "nan", "inf",
-                                       "1e999", "-1", "0", "D+05", "Gamma1", "r", "\r\n", "e",
-                                       "+", "[log10(Lsun)]", "1e-400", "  "};
+  static const char* const tokens[] = {
+      "\n", "#",    " = ",    ",", "[Rsun]", "[log10]", "nan", "inf",           "1e999",  "-1",
+      "0",  "D+05", "Gamma1", "r", "\r\n",   "e",       "+",   "[log10(Lsun)]", "1e-400", "  "};
   auto pick = [&](std::size_t n) { return n == 0 ? std::size_t{0} : std::size_t(rng() % n); };
   switch (rng() % 6) {
   case 0:
@@ -40,12 +42,14 @@ void mutate(Bytes& b, std::mt19937_64& rng, const std::vector<Bytes>& corpus) {
     if (!b.empty()) {
       const std::size_t at = pick(b.size());
       const std::size_t len = 1 + pick(std::min<std::size_t>(32, b.size() - at));
-      b.erase(b.begin() + std::ptrdiff_t(at), b.begin() + std::ptrdiff_t(std::min(b.size(), at + len)));
+      b.erase(b.begin() + std::ptrdiff_t(at),
+              b.begin() + std::ptrdiff_t(std::min(b.size(), at + len)));
     }
     break;
   case 3: {
     const char* t = tokens[pick(std::size(tokens))];
-    b.insert(b.begin() + std::ptrdiff_t(pick(b.size() + 1)), t, t + std::char_traits<char>::length(t));
+    b.insert(b.begin() + std::ptrdiff_t(pick(b.size() + 1)), t,
+             t + std::char_traits<char>::length(t));
     break;
   }
   case 4:

@@ -1,0 +1,114 @@
+#pragma once
+// Galerkin linear finite elements for symmetric quadratic forms in one dimension, and the
+// energy form of radial adiabatic pulsation (physics.md §4) built on them.
+//
+// Generic core. On a base mesh x_0 < x_1 < ... < x_n the forms
+//     k(u, v) = ∫ [ a u'v' + b (u v' + u' v) + c u v ] dx  + k_first u(x_0)v(x_0) + k_last u(x_n)v(x_n)
+//     m(u, v) = ∫ d u v dx                                  + m_first u(x_0)v(x_0) + m_last u(x_n)v(x_n)
+// are sampled once (WeakForm) at Gauss–Legendre points inside every base interval. A finite-
+// element mesh is any subset of the base nodes containing x_0 and x_n (for instance all of
+// them, or every other one); its hat functions are integrated with the base-interval
+// quadrature, so a coarse element spanning two base intervals sees exactly the same
+// coefficients as the fine mesh does. The result is a symmetric tridiagonal pencil (K, M).
+// A plain Sturm–Liouville problem -(p u')' + q u = lambda w u is a = p, b = 0, c = q, d = w.
+//
+// Stellar form (make_stellar_form). In units x = r/R, masses in M, P in G M^2/R^4 and
+// rho in M/R^3 (so eigenvalues are sigma^2 = omega^2 R^3/(G M)):
+//     K[xi] = ∫ [ Gamma1 P x^2 (3 xi + x xi')^2 - 4 m rho x xi^2 ] dx - 4 P_s xi(1)^2
+//     M[xi] = ∫ rho x^4 xi^2 dx + P_s xi(1)^2
+// i.e. a = Gamma1 P x^4, b = 3 Gamma1 P x^3, c = 9 Gamma1 P x^2 - 4 m rho x, d = rho x^4.
+// The two surface terms (regular surface, default) are left out for fixed_pressure, whose
+// natural condition is then delta P = 0. The inner node is free for `centre` (regularity is
+// the natural condition) and removed (xi = 0) for `rigid`.
+#include "radmode/eigensolve.hpp"
+#include "radmode/structure.hpp"
+
+#include <cstddef>
+#include <functional>
+#include <optional>
+#include <vector>
+
+namespace radmode {
+
+/// Coefficients of the forms k and m at one point.
+struct FormCoefficients {
+  double a = 0, b = 0, c = 0, d = 0;
+};
+
+/// The forms sampled at the quadrature points of every base interval.
+struct WeakForm {
+  std::vector<double> x; ///< base mesh, strictly increasing (n + 1 nodes)
+  int points_per_interval = 3;
+  /// Per quadrature point (interval i, point q at index i * points_per_interval + q):
+  /// local coordinate t in (0, 1) inside interval i, weight w (includes the interval length)
+  /// and the coefficients.
+  std::vector<double> t, w, a, b, c, d;
+  double k_first = 0, k_last = 0, m_first = 0, m_last = 0; ///< boundary terms
+
+  std::size_t interval_count() const noexcept { return x.empty() ? 0 : x.size() - 1; }
+};
+
+/// Gauss–Legendre points per base interval used by the samplers: exact for polynomials of
+/// degree 5 inside each interval (the integrands are quadratic in the hat functions times
+/// smooth coefficients).
+inline constexpr int default_quadrature_points = 3;
+
+/// Samples a generic form: `coefficients(interval, t, x)` returns a, b, c, d at
+/// x = x_i + t (x_{i+1} - x_i). Throws UsageError if x is not strictly increasing or has fewer
+/// than 2 nodes, or points_per_interval is not 1..5.
+WeakForm sample_form(std::vector<double> x,
+                     const std::function<FormCoefficients(std::size_t, double, double)>& coefficients,
+                     int points_per_interval = default_quadrature_points);
+
+/// The stellar energy form of `structure` in the units above (see the file comment). The base
+/// mesh is structure.node_r() / R. omega2_unit() converts its eigenvalues to s^-2.
+/// If `coefficients_from` is given, the coefficients at the quadrature points are taken from
+/// that structure (evaluated by radius; it must span the same radii, mass and surface
+/// pressure) instead: used to measure how much the eigenvalues depend on the interpolation
+/// between table points (a structure made of every other table row).
+WeakForm make_stellar_form(const Structure& structure, SurfaceCondition surface,
+                           const Structure* coefficients_from = nullptr);
+
+/// Every other table row of the prepared model (keeping the innermost and surface rows and
+/// both rows of every discontinuity), as a Structure with the same inner condition; nullopt
+/// when that leaves fewer than StellarModel::min_points rows.
+std::optional<Structure> every_other_row(const Structure& structure);
+
+/// G M / R^3 [s^-2]: omega^2 = sigma^2 * omega2_unit.
+double omega2_unit(const Structure& structure);
+
+/// Symmetric tridiagonal pencil. Row j belongs to base node `node[j]`.
+struct TridiagonalPencil {
+  std::vector<double> k_diag, k_off; ///< K: diagonal (size N), off-diagonal (size N - 1)
+  std::vector<double> m_diag, m_off; ///< M: same layout, symmetric positive definite
+  std::vector<std::size_t> node;     ///< base-mesh index of each unknown
+
+  std::size_t size() const noexcept { return k_diag.size(); }
+};
+
+/// Which base nodes form the element mesh, and which end values are fixed to zero.
+struct MeshSelection {
+  std::vector<std::size_t> nodes; ///< increasing base indices, first 0 and last n
+  bool fix_first = false;         ///< Dirichlet u = 0 at x_0 (the unknown is removed)
+  bool fix_last = false;          ///< Dirichlet u = 0 at x_n
+};
+
+/// All base nodes.
+std::vector<std::size_t> all_nodes(const WeakForm& form);
+/// Every other base node, always keeping the first, the last and every node flagged in
+/// `keep` (e.g. discontinuities; empty = none): elements span two base intervals except
+/// next to a kept node.
+std::vector<std::size_t> every_other_node(const WeakForm& form, const std::vector<bool>& keep = {});
+/// Same rule for a mesh of last + 1 nodes.
+std::vector<std::size_t> every_other_node(std::size_t last, const std::vector<bool>& keep = {});
+
+/// Galerkin assembly of the pencil on the selected mesh. O(number of quadrature points).
+/// Throws UsageError for an invalid selection.
+TridiagonalPencil assemble(const WeakForm& form, const MeshSelection& mesh);
+
+/// Number of negative pivots of LDL^T(K - s M) = number of eigenvalues below s (Sylvester's
+/// law of inertia). O(N), no allocation. A zero pivot is replaced by a tiny negative one, so
+/// an eigenvalue exactly at s counts as below.
+int inertia_below(const TridiagonalPencil& pencil, double s);
+
+} // namespace radmode

@@ -1,0 +1,259 @@
+#include "radmode/discretize.hpp"
+
+#include "radmode/constants.hpp"
+#include "radmode/error.hpp"
+
+#include <array>
+#include <cmath>
+#include <string>
+
+namespace radmode {
+
+namespace {
+
+struct GaussRule {
+  std::array<double, 5> t; ///< nodes on (0, 1)
+  std::array<double, 5> w; ///< weights, summing to 1
+};
+
+// Gauss–Legendre rules on [0, 1] (nodes (1 + z)/2, weights w/2 of the [-1, 1] rule;
+// Abramowitz & Stegun, Table 25.4).
+GaussRule gauss_rule(int points) {
+  GaussRule g{};
+  switch (points) {
+  case 1:
+    g.t[0] = 0.5;
+    g.w[0] = 1.0;
+    break;
+  case 2: {
+    const double z = 1.0 / std::sqrt(3.0);
+    g.t = {0.5 * (1 - z), 0.5 * (1 + z)};
+    g.w = {0.5, 0.5};
+    break;
+  }
+  case 3: {
+    const double z = std::sqrt(0.6);
+    g.t = {0.5 * (1 - z), 0.5, 0.5 * (1 + z)};
+    g.w = {5.0 / 18.0, 8.0 / 18.0, 5.0 / 18.0};
+    break;
+  }
+  case 4: {
+    const double z1 = std::sqrt(3.0 / 7.0 - 2.0 / 7.0 * std::sqrt(6.0 / 5.0));
+    const double z2 = std::sqrt(3.0 / 7.0 + 2.0 / 7.0 * std::sqrt(6.0 / 5.0));
+    const double w1 = (18.0 + std::sqrt(30.0)) / 36.0, w2 = (18.0 - std::sqrt(30.0)) / 36.0;
+    g.t = {0.5 * (1 - z2), 0.5 * (1 - z1), 0.5 * (1 + z1), 0.5 * (1 + z2)};
+    g.w = {0.5 * w2, 0.5 * w1, 0.5 * w1, 0.5 * w2};
+    break;
+  }
+  default: {
+    const double z1 = std::sqrt(5.0 - 2.0 * std::sqrt(10.0 / 7.0)) / 3.0;
+    const double z2 = std::sqrt(5.0 + 2.0 * std::sqrt(10.0 / 7.0)) / 3.0;
+    const double w0 = 128.0 / 225.0, w1 = (322.0 + 13.0 * std::sqrt(70.0)) / 900.0,
+                 w2 = (322.0 - 13.0 * std::sqrt(70.0)) / 900.0;
+    g.t = {0.5 * (1 - z2), 0.5 * (1 - z1), 0.5, 0.5 * (1 + z1), 0.5 * (1 + z2)};
+    g.w = {0.5 * w2, 0.5 * w1, 0.5 * w0, 0.5 * w1, 0.5 * w2};
+    break;
+  }
+  }
+  return g;
+}
+
+} // namespace
+
+WeakForm sample_form(std::vector<double> x,
+                     const std::function<FormCoefficients(std::size_t, double, double)>& coefficients,
+                     int points_per_interval) {
+  if (points_per_interval < 1 || points_per_interval > 5)
+    throw UsageError("quadrature points per interval: expected 1..5, got " +
+                     std::to_string(points_per_interval));
+  if (x.size() < 2) throw UsageError("finite-element mesh: expected at least 2 nodes");
+  for (std::size_t i = 1; i < x.size(); ++i)
+    if (!(x[i] > x[i - 1]))
+      throw UsageError("finite-element mesh: nodes must increase strictly (node " +
+                       std::to_string(i) + ")");
+  WeakForm f;
+  f.x = std::move(x);
+  f.points_per_interval = points_per_interval;
+  const auto q = static_cast<std::size_t>(points_per_interval);
+  const std::size_t total = f.interval_count() * q;
+  for (auto* v : {&f.t, &f.w, &f.a, &f.b, &f.c, &f.d}) v->resize(total);
+  const GaussRule g = gauss_rule(points_per_interval);
+  for (std::size_t i = 0; i < f.interval_count(); ++i) {
+    const double h = f.x[i + 1] - f.x[i];
+    for (std::size_t k = 0; k < q; ++k) {
+      const std::size_t j = i * q + k;
+      const double t = g.t[k];
+      const FormCoefficients c = coefficients(i, t, f.x[i] + t * h);
+      f.t[j] = t;
+      f.w[j] = g.w[k] * h;
+      f.a[j] = c.a;
+      f.b[j] = c.b;
+      f.c[j] = c.c;
+      f.d[j] = c.d;
+    }
+  }
+  return f;
+}
+
+double omega2_unit(const Structure& s) {
+  const double R = s.radius();
+  return constants::G * s.mass() / (R * R * R);
+}
+
+WeakForm make_stellar_form(const Structure& s, SurfaceCondition surface,
+                           const Structure* coefficients_from) {
+  const double R = s.radius(), M = s.mass();
+  const double P_unit = constants::G * M * M / (R * R * R * R);
+  const double rho_unit = M / (R * R * R);
+  std::vector<double> x(s.node_r().size());
+  for (std::size_t i = 0; i < x.size(); ++i) x[i] = s.node_r()[i] / R;
+  x.back() = 1.0;
+  std::size_t hint = 0;
+  WeakForm f = sample_form(
+      std::move(x),
+      [&](std::size_t interval, double t, double xq) {
+        const StructurePoint p =
+            coefficients_from
+                ? coefficients_from->at_radius(
+                      s.node_r()[interval] + t * (s.node_r()[interval + 1] - s.node_r()[interval]),
+                      &hint)
+                : s.at(interval, t);
+        const double P = p.P / P_unit, rho = p.rho / rho_unit, m = p.m / M;
+        const double gp = p.gamma1 * P, x2 = xq * xq;
+        FormCoefficients c;
+        c.a = gp * x2 * x2;
+        c.b = 3.0 * gp * x2 * xq;
+        c.c = 9.0 * gp * x2 - 4.0 * m * rho * xq;
+        c.d = rho * x2 * x2;
+        return c;
+      },
+      default_quadrature_points);
+  if (surface == SurfaceCondition::regular) {
+    const double Ps = s.surface_pressure() / P_unit;
+    f.k_last = -4.0 * Ps;
+    f.m_last = Ps;
+  }
+  return f;
+}
+
+std::vector<std::size_t> all_nodes(const WeakForm& form) {
+  std::vector<std::size_t> n(form.x.size());
+  for (std::size_t i = 0; i < n.size(); ++i) n[i] = i;
+  return n;
+}
+
+std::vector<std::size_t> every_other_node(const WeakForm& form, const std::vector<bool>& keep) {
+  return every_other_node(form.interval_count(), keep);
+}
+
+std::vector<std::size_t> every_other_node(std::size_t last, const std::vector<bool>& keep) {
+  std::vector<std::size_t> n;
+  n.reserve(last / 2 + 2);
+  std::size_t i = 0;
+  n.push_back(0);
+  while (i < last) {
+    const bool keep_next = i + 1 < keep.size() && keep[i + 1];
+    i = (keep_next || i + 2 > last) ? i + 1 : i + 2;
+    n.push_back(i);
+  }
+  return n;
+}
+
+std::optional<Structure> every_other_row(const Structure& s) {
+  const StellarModel& t = s.table();
+  const std::vector<std::size_t> keep_nodes = every_other_node(s.interval_count(), s.discontinuity());
+  std::vector<bool> keep_node(s.node_r().size(), false);
+  for (const std::size_t k : keep_nodes) keep_node[k] = true;
+  // Rows map to nodes in order: a repeated radius gives two rows on one node.
+  std::vector<std::size_t> rows;
+  std::size_t node = 0;
+  for (std::size_t j = 0; j < t.size(); ++j) {
+    if (j > 0 && t.r[j] != t.r[j - 1]) ++node;
+    if (keep_node[node]) rows.push_back(j);
+  }
+  if (rows.size() < StellarModel::min_points) return std::nullopt;
+  StellarModel c;
+  auto pick = [&](const std::vector<double>& from, std::vector<double>& to) {
+    if (from.empty()) return;
+    to.reserve(rows.size());
+    for (const std::size_t j : rows) to.push_back(from[j]);
+  };
+  pick(t.r, c.r);
+  pick(t.m, c.m);
+  pick(t.P, c.P);
+  pick(t.rho, c.rho);
+  pick(t.gamma1, c.gamma1);
+  pick(t.nabla_ad, c.nabla_ad);
+  c.source = t.source;
+  return Structure(c, s.inner());
+}
+
+TridiagonalPencil assemble(const WeakForm& f, const MeshSelection& mesh) {
+  const auto& nodes = mesh.nodes;
+  const std::size_t last = f.interval_count();
+  if (nodes.size() < 2 || nodes.front() != 0 || nodes.back() != last)
+    throw UsageError("finite-element mesh: the selection must start at the first base node and "
+                     "end at the last");
+  for (std::size_t e = 1; e < nodes.size(); ++e)
+    if (nodes[e] <= nodes[e - 1])
+      throw UsageError("finite-element mesh: selected nodes must increase strictly");
+  const std::size_t nn = nodes.size();
+  std::vector<double> kd(nn, 0.0), ko(nn - 1, 0.0), md(nn, 0.0), mo(nn - 1, 0.0);
+  const auto q = static_cast<std::size_t>(f.points_per_interval);
+  for (std::size_t e = 0; e + 1 < nn; ++e) {
+    const double xl = f.x[nodes[e]], xr = f.x[nodes[e + 1]];
+    const double h = xr - xl, inv_h = 1.0 / h, inv_h2 = inv_h * inv_h;
+    double kll = 0, krr = 0, klr = 0, mll = 0, mrr = 0, mlr = 0;
+    for (std::size_t j = nodes[e] * q; j < nodes[e + 1] * q; ++j) {
+      const std::size_t i = j / q;
+      const double xq = f.x[i] + f.t[j] * (f.x[i + 1] - f.x[i]);
+      const double pl = (xr - xq) * inv_h, pr = 1.0 - pl;
+      const double w = f.w[j], a = f.a[j] * inv_h2, b = f.b[j] * inv_h, c = f.c[j], d = f.d[j];
+      kll += w * (a - 2.0 * b * pl + c * pl * pl);
+      krr += w * (a + 2.0 * b * pr + c * pr * pr);
+      klr += w * (-a + b * (pl - pr) + c * pl * pr);
+      mll += w * d * pl * pl;
+      mrr += w * d * pr * pr;
+      mlr += w * d * pl * pr;
+    }
+    kd[e] += kll;
+    kd[e + 1] += krr;
+    ko[e] += klr;
+    md[e] += mll;
+    md[e + 1] += mrr;
+    mo[e] += mlr;
+  }
+  kd.front() += f.k_first;
+  md.front() += f.m_first;
+  kd.back() += f.k_last;
+  md.back() += f.m_last;
+
+  const std::size_t lo = mesh.fix_first ? 1 : 0;
+  const std::size_t hi = mesh.fix_last ? nn - 1 : nn; // one past the last unknown
+  if (hi <= lo + 1) throw UsageError("finite-element mesh: fewer than 2 unknowns remain");
+  TridiagonalPencil p;
+  p.k_diag.assign(kd.begin() + static_cast<std::ptrdiff_t>(lo), kd.begin() + static_cast<std::ptrdiff_t>(hi));
+  p.m_diag.assign(md.begin() + static_cast<std::ptrdiff_t>(lo), md.begin() + static_cast<std::ptrdiff_t>(hi));
+  p.k_off.assign(ko.begin() + static_cast<std::ptrdiff_t>(lo), ko.begin() + static_cast<std::ptrdiff_t>(hi - 1));
+  p.m_off.assign(mo.begin() + static_cast<std::ptrdiff_t>(lo), mo.begin() + static_cast<std::ptrdiff_t>(hi - 1));
+  p.node.assign(nodes.begin() + static_cast<std::ptrdiff_t>(lo), nodes.begin() + static_cast<std::ptrdiff_t>(hi));
+  return p;
+}
+
+int inertia_below(const TridiagonalPencil& p, double s) {
+  const std::size_t n = p.size();
+  int negative = 0;
+  double d = 1.0;
+  double e_prev = 0.0;
+  for (std::size_t j = 0; j < n; ++j) {
+    double piv = p.k_diag[j] - s * p.m_diag[j];
+    if (j > 0) piv -= e_prev * e_prev / d;
+    if (piv == 0.0) piv = -1e-300;
+    if (piv < 0.0) ++negative;
+    d = piv;
+    if (j + 1 < n) e_prev = p.k_off[j] - s * p.m_off[j];
+  }
+  return negative;
+}
+
+} // namespace radmode

@@ -1,0 +1,605 @@
+#include "radmode/eigensolve.hpp"
+
+#include "radmode/discretize.hpp"
+#include "radmode/error.hpp"
+#include "radmode/structure.hpp"
+
+#include <Eigen/Dense>
+#include <Spectra/SymGEigsShiftSolver.h>
+
+#include <algorithm>
+#include <cmath>
+#include <limits>
+#include <sstream>
+
+namespace radmode {
+
+void SolveOptions::validate() const {
+  if (window_lo_omega2.has_value() != window_hi_omega2.has_value())
+    throw UsageError("window of omega^2: give both the lower and the upper end");
+  if (window_lo_omega2) {
+    if (!std::isfinite(*window_lo_omega2) || !std::isfinite(*window_hi_omega2))
+      throw UsageError("window of omega^2: expected finite ends");
+    if (!(*window_lo_omega2 < *window_hi_omega2)) {
+      std::ostringstream m;
+      m << "window of omega^2: expected lower end < upper end, got " << *window_lo_omega2
+        << " .. " << *window_hi_omega2 << " s^-2";
+      throw UsageError(m.str());
+    }
+    return;
+  }
+  if (count < 1 || count > max_count)
+    throw UsageError("number of modes: expected 1.." + std::to_string(max_count) + ", got " +
+                     std::to_string(count));
+}
+
+namespace {
+
+constexpr double eps = std::numeric_limits<double>::epsilon();
+
+using Vec = Eigen::VectorXd;
+
+void mult(const std::vector<double>& diag, const std::vector<double>& off, const double* x,
+          double* y) {
+  const std::size_t n = diag.size();
+  for (std::size_t j = 0; j < n; ++j) y[j] = diag[j] * x[j];
+  for (std::size_t j = 0; j + 1 < n; ++j) {
+    y[j] += off[j] * x[j + 1];
+    y[j + 1] += off[j] * x[j];
+  }
+}
+
+/// LDL^T factorization of K - s M (tridiagonal, no pivoting) and its solve.
+class Ldlt {
+public:
+  explicit Ldlt(const TridiagonalPencil& p) : m_p(p), m_d(p.size()), m_l(p.size()) {}
+
+  void factor(double s) {
+    const std::size_t n = m_p.size();
+    double floor = 0.0;
+    for (std::size_t j = 0; j < n; ++j)
+      floor = std::max(floor, std::abs(m_p.k_diag[j]) + std::abs(s) * m_p.m_diag[j]);
+    floor *= eps * eps;
+    for (std::size_t j = 0; j < n; ++j) {
+      double d = m_p.k_diag[j] - s * m_p.m_diag[j];
+      if (j > 0) d -= m_l[j - 1] * (m_p.k_off[j - 1] - s * m_p.m_off[j - 1]);
+      if (std::abs(d) < floor) d = d < 0 ? -floor : floor; // exactly singular: stay finite
+      m_d[j] = d;
+      if (j + 1 < n) m_l[j] = (m_p.k_off[j] - s * m_p.m_off[j]) / d;
+    }
+  }
+
+  /// y = (K - s M)^{-1} x; x and y may alias.
+  void solve(const double* x, double* y) const {
+    const std::size_t n = m_p.size();
+    if (x == nullptr || y == nullptr || n == 0) return; // (Spectra never passes null)
+    y[0] = x[0];
+    for (std::size_t j = 1; j < n; ++j) y[j] = x[j] - m_l[j - 1] * y[j - 1];
+    for (std::size_t j = 0; j < n; ++j) y[j] /= m_d[j];
+    for (std::size_t j = n - 1; j-- > 0;) y[j] -= m_l[j] * y[j + 1];
+  }
+
+private:
+  const TridiagonalPencil& m_p;
+  std::vector<double> m_d, m_l;
+};
+
+/// Spectra operation: y = (K - sigma M)^{-1} x.
+class ShiftInvertOp {
+public:
+  using Scalar = double;
+  explicit ShiftInvertOp(const TridiagonalPencil& p) : m_ldlt(p), m_n(static_cast<Eigen::Index>(p.size())) {}
+  Eigen::Index rows() const { return m_n; }
+  Eigen::Index cols() const { return m_n; }
+  void set_shift(const double& sigma) { m_ldlt.factor(sigma); }
+  void perform_op(const double* x_in, double* y_out) const { m_ldlt.solve(x_in, y_out); }
+
+private:
+  Ldlt m_ldlt;
+  Eigen::Index m_n;
+};
+
+/// Spectra operation: y = M x.
+class MassOp {
+public:
+  using Scalar = double;
+  explicit MassOp(const TridiagonalPencil& p) : m_p(p) {}
+  Eigen::Index rows() const { return static_cast<Eigen::Index>(m_p.size()); }
+  Eigen::Index cols() const { return rows(); }
+  void perform_op(const double* x_in, double* y_out) const {
+    mult(m_p.m_diag, m_p.m_off, x_in, y_out);
+  }
+
+private:
+  const TridiagonalPencil& m_p;
+};
+
+/// Rough magnitude of the spectrum: max |K_jj| / M_jj (about the largest eigenvalue).
+double spectrum_scale(const TridiagonalPencil& p) {
+  double s = 0.0;
+  for (std::size_t j = 0; j < p.size(); ++j) s = std::max(s, std::abs(p.k_diag[j]) / p.m_diag[j]);
+  return std::max(s, std::numeric_limits<double>::min());
+}
+
+/// Half-width of the interval around an eigenvalue inside which inertia counts are not
+/// trusted to separate it from its neighbours (round-off of the counts and of lambda).
+double count_margin(double lambda, double scale) { return 1e-9 * std::abs(lambda) + 64 * eps * scale; }
+
+struct Engine {
+  const TridiagonalPencil& p;
+  double scale;
+  int n;
+  int counts = 0; ///< inertia evaluations (diagnostics)
+  /// Eigenvalue magnitude that normalizes residuals of eigenvalues near zero.
+  double lambda_ref = 0;
+
+  explicit Engine(const TridiagonalPencil& pencil)
+      : p(pencil), scale(spectrum_scale(pencil)), n(static_cast<int>(pencil.size())) {}
+
+  int count(double s) {
+    ++counts;
+    return inertia_below(p, s);
+  }
+
+  /// A point below every eigenvalue, within a few bracket widths of the lowest one.
+  double below_lowest() {
+    // Rayleigh quotient of the constant vector: an upper bound of the lowest eigenvalue.
+    double k1 = 0, m1 = 0;
+    for (std::size_t j = 0; j < p.size(); ++j) {
+      k1 += p.k_diag[j];
+      m1 += p.m_diag[j];
+    }
+    for (std::size_t j = 0; j + 1 < p.size(); ++j) {
+      k1 += 2 * p.k_off[j];
+      m1 += 2 * p.m_off[j];
+    }
+    const double rq = k1 / m1;
+    double delta = std::max(std::abs(rq), 1e-8 * scale);
+    double lo = rq - delta;
+    for (int it = 0; it < 2000 && count(lo) > 0; ++it) {
+      delta *= 4;
+      lo = rq - delta;
+    }
+    double hi = rq + delta;
+    for (int it = 0; it < 2000 && count(hi) == 0; ++it) hi += delta *= 4;
+    for (int it = 0; it < 6; ++it) {
+      const double mid = 0.5 * (lo + hi);
+      (count(mid) == 0 ? lo : hi) = mid;
+    }
+    return lo - (hi - lo);
+  }
+
+  /// A point above every eigenvalue.
+  double above_highest() {
+    double u = 2 * scale;
+    for (int it = 0; it < 2000 && count(u) < n; ++it) u *= 4;
+    return u;
+  }
+
+  /// A point s with count(s) == j (0 <= j <= n), searched by bisection in [a, b] (widened
+  /// when needed); nullopt when two eigenvalues are too close to separate.
+  std::optional<double> point_with_count(int j, double a, double b) {
+    if (!(a < b)) std::swap(a, b);
+    for (int it = 0; it < 200 && count(a) > j; ++it) a -= 2 * (b - a) + scale * 1e-12;
+    for (int it = 0; it < 200 && count(b) < j; ++it) b += 2 * (b - a) + scale * 1e-12;
+    int ca = count(a), cb = count(b);
+    if (ca > j || cb < j) return std::nullopt;
+    for (int it = 0; it < 200; ++it) {
+      if (ca == j) return a;
+      if (cb == j) return b;
+      if (!bisect(j, a, b, ca, cb)) break;
+    }
+    return std::nullopt;
+  }
+
+  /// Halves [a, b] keeping count(a) <= j < count(b) (ca, cb: the counts); false when the
+  /// interval cannot be split further in floating point.
+  bool bisect(int j, double& a, double& b, int& ca, int& cb) {
+    const double mid = 0.5 * (a + b);
+    if (!(mid > a && mid < b)) return false;
+    const int cm = count(mid);
+    if (cm > j) {
+      b = mid;
+      cb = cm;
+    } else {
+      a = mid;
+      ca = cm;
+    }
+    return true;
+  }
+
+  /// Fills lambda (Rayleigh quotient), M-normalized x, residual, index and multiplicity.
+  PencilEigenpair finish(std::vector<double> x) {
+    const std::size_t m = p.size();
+    std::vector<double> kx(m), mx(m);
+    mult(p.k_diag, p.k_off, x.data(), kx.data());
+    mult(p.m_diag, p.m_off, x.data(), mx.data());
+    double xkx = 0, xmx = 0;
+    for (std::size_t j = 0; j < m; ++j) {
+      xkx += x[j] * kx[j];
+      xmx += x[j] * mx[j];
+    }
+    PencilEigenpair e;
+    e.lambda = xkx / xmx;
+    double r2 = 0, k2 = 0, m2 = 0;
+    for (std::size_t j = 0; j < m; ++j) {
+      const double r = kx[j] - e.lambda * mx[j];
+      r2 += r * r;
+      k2 += kx[j] * kx[j];
+      m2 += mx[j] * mx[j];
+    }
+    const double denom = std::sqrt(k2) + std::max(std::abs(e.lambda), lambda_ref) * std::sqrt(m2);
+    e.residual = denom > 0 ? std::sqrt(r2) / denom : 0.0;
+    const double norm = 1.0 / std::sqrt(xmx);
+    for (double& v : x) v *= norm;
+    e.x = std::move(x);
+    if (!std::isfinite(e.lambda)) return e; // index stays -1: rejected by the caller
+    const double margin = count_margin(e.lambda, scale);
+    e.index = count(e.lambda - margin);
+    e.multiplicity = count(e.lambda + margin) - e.index;
+    return e;
+  }
+
+  /// Inverse iteration at shift mu from a start vector; a few steps suffice when mu is close.
+  PencilEigenpair inverse_iteration(double mu, std::vector<double> x) {
+    Ldlt f(p);
+    f.factor(mu);
+    std::vector<double> mx(p.size());
+    for (int it = 0; it < 6; ++it) {
+      mult(p.m_diag, p.m_off, x.data(), mx.data());
+      f.solve(mx.data(), x.data());
+      double big = 0;
+      for (const double v : x) big = std::max(big, std::abs(v));
+      if (!(big > 0) || !std::isfinite(big)) break;
+      for (double& v : x) v /= big;
+    }
+    return finish(std::move(x));
+  }
+
+  /// Eigenpair with index j by bisection on the inertia count, then inverse iteration.
+  /// [lo, hi] must bracket it (count(lo) <= j < count(hi)).
+  std::optional<PencilEigenpair> recover(int j, double lo, double hi) {
+    int clo = count(lo), chi = count(hi);
+    if (clo > j || chi <= j) return std::nullopt;
+    for (int it = 0; it < 300; ++it) {
+      if (hi - lo <= 1e-10 * std::max(std::abs(lo), std::abs(hi)) + 16 * eps * scale) break;
+      if (!bisect(j, lo, hi, clo, chi)) break;
+    }
+    // Start vector: smooth, not orthogonal to anything in particular.
+    std::vector<double> x(p.size());
+    for (std::size_t i = 0; i < x.size(); ++i)
+      x[i] = 1.0 + 0.5 * std::sin(0.7 * static_cast<double>(i) + 0.3);
+    PencilEigenpair e = inverse_iteration(0.5 * (lo + hi), std::move(x));
+    if (e.index != j) return std::nullopt;
+    return e;
+  }
+};
+
+std::vector<std::vector<double>> dense_solve(const TridiagonalPencil& p, int first, int count,
+                                             std::vector<double>& lambdas) {
+  const auto n = static_cast<Eigen::Index>(p.size());
+  Eigen::MatrixXd K = Eigen::MatrixXd::Zero(n, n), M = Eigen::MatrixXd::Zero(n, n);
+  for (Eigen::Index j = 0; j < n; ++j) {
+    const auto u = static_cast<std::size_t>(j);
+    K(j, j) = p.k_diag[u];
+    M(j, j) = p.m_diag[u];
+    if (j + 1 < n) {
+      K(j, j + 1) = K(j + 1, j) = p.k_off[u];
+      M(j, j + 1) = M(j + 1, j) = p.m_off[u];
+    }
+  }
+  Eigen::GeneralizedSelfAdjointEigenSolver<Eigen::MatrixXd> es(K, M);
+  std::vector<std::vector<double>> xs;
+  if (es.info() != Eigen::Success) return xs;
+  for (int j = first; j < first + count && j < n; ++j) {
+    lambdas.push_back(es.eigenvalues()(j));
+    const Vec v = es.eigenvectors().col(j);
+    xs.emplace_back(v.data(), v.data() + n);
+  }
+  return xs;
+}
+
+} // namespace
+
+PencilSpectrum solve_pencil(const TridiagonalPencil& p, const PencilRequest& req) {
+  const std::size_t n_unknowns = p.size();
+  if (n_unknowns < 2 || p.k_off.size() + 1 != n_unknowns || p.m_diag.size() != n_unknowns ||
+      p.m_off.size() + 1 != n_unknowns)
+    throw UsageError("eigen-solve: pencil with inconsistent sizes or fewer than 2 unknowns");
+  for (std::size_t j = 0; j < n_unknowns; ++j)
+    if (!(p.m_diag[j] > 0) || !std::isfinite(p.k_diag[j]))
+      throw UsageError("eigen-solve: M must be positive definite and K finite (row " +
+                       std::to_string(j) + ")");
+  const bool window = req.window_lo.has_value() && req.window_hi.has_value();
+  if (!window && (req.first < 0 || req.count < 1))
+    throw UsageError("eigen-solve: expected first >= 0 and count >= 1");
+  if (window && !(*req.window_lo < *req.window_hi))
+    throw UsageError("eigen-solve: expected window_lo < window_hi");
+
+  Engine eng(p);
+  const int n = eng.n;
+  PencilSpectrum out;
+
+  // 1. Target indices [i0, i1) and the shift.
+  int i0 = 0, i1 = 0;
+  double sigma = 0;
+  if (window) {
+    i0 = eng.count(*req.window_lo);
+    i1 = eng.count(*req.window_hi);
+    sigma = 0.5 * (*req.window_lo + *req.window_hi); // the targets are exactly the nearest
+  } else {
+    i0 = req.first;
+    i1 = req.first + req.count;
+    if (i1 > n) {
+      out.status = SolveStatus::fewer_modes;
+      out.message = "requested eigenvalues up to index " + std::to_string(i1 - 1) +
+                    " but the mesh has only " + std::to_string(n) + " unknowns";
+      i1 = n;
+    }
+    if (i0 >= i1) return out;
+    const double low = eng.below_lowest();
+    if (i0 == 0) {
+      sigma = low;
+    } else {
+      const double high = eng.above_highest();
+      const auto a = eng.point_with_count(i0, low, high);
+      const auto b = eng.point_with_count(i1, a.value_or(low), high);
+      sigma = (a && b) ? 0.5 * (*a + *b) : low;
+    }
+  }
+  out.shift = sigma;
+  const int nev = i1 - i0;
+  if (nev <= 0) return out;
+
+  // 2. Solve: Spectra shift-invert Lanczos, or dense for small pencils.
+  std::vector<PencilEigenpair> found;
+  const int ncv = std::min(n, std::max(2 * nev + 1, nev + 10));
+  if (n <= 200 || ncv >= n) {
+    std::vector<double> lambdas;
+    auto xs = dense_solve(p, i0, nev, lambdas);
+    for (auto& x : xs) found.push_back(eng.finish(std::move(x)));
+  } else {
+    try {
+      ShiftInvertOp op(p);
+      MassOp bop(p);
+      Spectra::SymGEigsShiftSolver<ShiftInvertOp, MassOp, Spectra::GEigsMode::ShiftInvert> eigs(
+          op, bop, nev, ncv, sigma);
+      eigs.init();
+      const auto nconv = eigs.compute(Spectra::SortRule::LargestMagn, 1000, 1e-11,
+                                      Spectra::SortRule::SmallestAlge);
+      out.iterations = static_cast<int>(eigs.num_iterations());
+      if (nconv > 0) {
+        const Eigen::MatrixXd vecs = eigs.eigenvectors();
+        for (Eigen::Index c = 0; c < vecs.cols(); ++c) {
+          const Vec v = vecs.col(c);
+          found.push_back(eng.finish(std::vector<double>(v.data(), v.data() + v.size())));
+        }
+      }
+      if (eigs.info() != Spectra::CompInfo::Successful) {
+        out.message = "Spectra did not converge for every requested eigenvalue (" +
+                      std::to_string(nconv) + " of " + std::to_string(nev) + ")";
+      }
+    } catch (const std::exception& e) {
+      out.message = std::string("Spectra failed: ") + e.what();
+    }
+  }
+
+  // Residuals of eigenvalues near zero are normalized with the largest |lambda| requested.
+  double lambda_ref = 0;
+  for (const auto& e : found)
+    if (std::isfinite(e.lambda)) lambda_ref = std::max(lambda_ref, std::abs(e.lambda));
+  if (lambda_ref > 0) {
+    eng.lambda_ref = lambda_ref;
+    for (auto& e : found)
+      if (std::abs(e.lambda) < lambda_ref) e = eng.finish(std::move(e.x));
+  }
+
+  // 3. Keep one pair per target index (verified by inertia); recover the missing ones.
+  std::vector<std::optional<PencilEigenpair>> slot(static_cast<std::size_t>(nev));
+  for (auto& e : found) {
+    if (e.index < i0 || e.index >= i1 || !std::isfinite(e.lambda)) continue;
+    auto& s = slot[static_cast<std::size_t>(e.index - i0)];
+    if (!s || e.residual < s->residual) s = std::move(e);
+  }
+  double low_bracket = std::numeric_limits<double>::quiet_NaN();
+  double high_bracket = std::numeric_limits<double>::quiet_NaN();
+  for (int j = i0; j < i1; ++j) {
+    auto& s = slot[static_cast<std::size_t>(j - i0)];
+    if (s) continue;
+    if (std::isnan(low_bracket)) {
+      low_bracket = eng.below_lowest();
+      high_bracket = eng.above_highest();
+    }
+    // Tightest bracket from the neighbours already found.
+    double lo = low_bracket, hi = high_bracket;
+    for (const auto& o : slot)
+      if (o && o->index < j) lo = std::max(lo, o->lambda);
+      else if (o && o->index > j) hi = std::min(hi, o->lambda);
+    s = eng.recover(j, lo, hi);
+    if (s) ++out.recovered;
+  }
+  int missing = 0;
+  for (auto& s : slot) {
+    if (s) out.pairs.push_back(std::move(*s));
+    else ++missing;
+  }
+  std::sort(out.pairs.begin(), out.pairs.end(),
+            [](const PencilEigenpair& a, const PencilEigenpair& b) { return a.lambda < b.lambda; });
+  if (missing > 0) {
+    if (out.status == SolveStatus::ok) out.status = SolveStatus::not_converged;
+    out.message += (out.message.empty() ? "" : "; ") + std::to_string(missing) +
+                   " requested eigenvalue(s) could not be established";
+  } else if (out.status == SolveStatus::ok && out.recovered > 0) {
+    out.message += (out.message.empty() ? "" : "; ") + std::to_string(out.recovered) +
+                   " eigenvalue(s) recovered by inertia bisection and inverse iteration";
+  }
+  return out;
+}
+
+namespace {
+
+/// Sign changes of xi, ignoring entries below 1e-9 max|xi| (the exact zero at a rigid inner
+/// boundary and round-off next to it).
+int count_nodes(const std::vector<double>& xi) {
+  double big = 0;
+  for (const double v : xi) big = std::max(big, std::abs(v));
+  const double threshold = 1e-9 * big;
+  int nodes = 0, sign = 0;
+  for (const double v : xi) {
+    if (std::abs(v) <= threshold) continue;
+    const int sv = v > 0 ? 1 : -1;
+    if (sign != 0 && sv != sign) ++nodes;
+    sign = sv;
+  }
+  return nodes;
+}
+
+/// x^T A x / x^T B x for tridiagonal A, B; also sum |x_i A_ij x_j| (round-off scale of x^T A x).
+struct Quotient {
+  double value, abs_numerator, denominator;
+};
+Quotient quotient(const std::vector<double>& ad, const std::vector<double>& ao,
+                  const std::vector<double>& bd, const std::vector<double>& bo,
+                  const std::vector<double>& x) {
+  double num = 0, abs_num = 0, den = 0;
+  for (std::size_t j = 0; j < x.size(); ++j) {
+    num += ad[j] * x[j] * x[j];
+    abs_num += std::abs(ad[j]) * x[j] * x[j];
+    den += bd[j] * x[j] * x[j];
+  }
+  for (std::size_t j = 0; j + 1 < x.size(); ++j) {
+    num += 2 * ao[j] * x[j] * x[j + 1];
+    abs_num += 2 * std::abs(ao[j] * x[j] * x[j + 1]);
+    den += 2 * bo[j] * x[j] * x[j + 1];
+  }
+  return {num / den, abs_num / den, den};
+}
+
+void add_flag(ModeSolution& m, const std::string& text) {
+  m.trusted = false;
+  m.flag += (m.flag.empty() ? "" : "; ") + text;
+}
+
+} // namespace
+
+ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
+  options.validate();
+  const Structure s(model, options.inner);
+  const double unit = omega2_unit(s);
+  const bool rigid = options.inner == InnerCondition::rigid;
+  const WeakForm form = make_stellar_form(s, options.surface);
+  const MeshSelection fine{all_nodes(form), rigid, false};
+  const TridiagonalPencil pf = assemble(form, fine);
+
+  PencilRequest request;
+  if (options.window_lo_omega2) {
+    request.window_lo = *options.window_lo_omega2 / unit;
+    request.window_hi = *options.window_hi_omega2 / unit;
+  } else {
+    request.count = options.count;
+  }
+  PencilSpectrum sf = solve_pencil(pf, request);
+
+  ModeSet out;
+  out.node_r = s.node_r();
+  out.status = sf.status;
+  out.message = sf.message;
+  out.iterations = sf.iterations;
+  if (sf.pairs.empty()) return out;
+
+  // Richardson partner: the same indices on the every-other-node mesh.
+  std::optional<PencilSpectrum> sc;
+  std::optional<TridiagonalPencil> pi; // fine mesh, coefficients from every other table row
+  if (options.richardson) {
+    const MeshSelection coarse{every_other_node(form, s.discontinuity()), rigid, false};
+    const std::size_t unknowns = coarse.nodes.size() - (rigid ? 1 : 0);
+    if (unknowns >= 2) {
+      const TridiagonalPencil pc = assemble(form, coarse);
+      PencilRequest rc;
+      rc.first = sf.pairs.front().index;
+      rc.count = sf.pairs.back().index - rc.first + 1;
+      sc = solve_pencil(pc, rc);
+      if (sc->status != SolveStatus::ok)
+        out.message += (out.message.empty() ? "" : "; ") + std::string("coarse mesh: ") + sc->message;
+    }
+    if (const auto half = every_other_row(s))
+      pi = assemble(make_stellar_form(s, options.surface, &*half), fine);
+  }
+
+  Engine eng(pf);
+  for (auto& e : sf.pairs) {
+    ModeSolution m;
+    m.trusted = true;
+    m.order = e.index;
+    m.inertia_multiplicity = e.multiplicity;
+    m.residual = e.residual;
+    m.omega2_fine = e.lambda * unit;
+    m.omega2_coarse = m.omega2_fine;
+    m.omega2 = m.omega2_fine;
+
+    // Error estimate, pencil units: discretization (Richardson), interpolation between table
+    // rows, residual and round-off.
+    const Quotient qf = quotient(pf.k_diag, pf.k_off, pf.m_diag, pf.m_off, e.x);
+    double err = 2 * e.residual * std::abs(e.lambda) + 100 * eps * qf.abs_numerator;
+    if (options.richardson) {
+      const PencilEigenpair* partner = nullptr;
+      if (sc)
+        for (const auto& c : sc->pairs)
+          if (c.index == e.index) partner = &c;
+      if (partner) {
+        m.omega2_coarse = partner->lambda * unit;
+        m.omega2 = m.omega2_fine + (m.omega2_fine - m.omega2_coarse) / 3.0;
+        err += std::abs(e.lambda - partner->lambda) / 3.0;
+        // The coarse space is a subspace of the fine one, so its eigenvalues
+        // cannot be lower (Courant–Fischer); a violation means the pairing is wrong.
+        if (partner->lambda < e.lambda - count_margin(e.lambda, eng.scale))
+          add_flag(m, "coarse-mesh eigenvalue below the fine one");
+      } else {
+        add_flag(m, "no coarse-mesh partner: no discretization error estimate");
+      }
+      if (pi) {
+        const Quotient qi = quotient(pi->k_diag, pi->k_off, pi->m_diag, pi->m_off, e.x);
+        m.interpolation_error = std::abs(qi.value - e.lambda) / 3.0 * unit;
+        err += std::abs(qi.value - e.lambda) / 3.0;
+      } else {
+        add_flag(m, "model too small to estimate the interpolation error");
+      }
+    }
+    m.error_estimate = err * unit;
+
+    // xi at every node (0 at a rigid inner node), normalized to xi(R) = 1.
+    m.xi.assign(out.node_r.size(), 0.0);
+    for (std::size_t j = 0; j < e.x.size(); ++j) m.xi[pf.node[j]] = e.x[j];
+    double big = 0;
+    for (const double v : m.xi) big = std::max(big, std::abs(v));
+    const double surface = m.xi.back();
+    if (std::abs(surface) > 1e-8 * big) {
+      for (double& v : m.xi) v /= surface;
+    } else {
+      for (double& v : m.xi) v /= big;
+      add_flag(m, "xi(R) is close to zero: normalized to max |xi| = 1 instead");
+    }
+    m.nodes = count_nodes(m.xi);
+    m.order_agrees = m.nodes == m.order;
+
+    if (!m.order_agrees)
+      add_flag(m, "order from inertia (" + std::to_string(m.order) + ") and node count (" +
+                      std::to_string(m.nodes) + ") disagree");
+    if (m.inertia_multiplicity != 1)
+      add_flag(m, "inertia sees " + std::to_string(m.inertia_multiplicity) +
+                      " eigenvalues at this omega^2");
+    if (!(m.residual <= 1e-8)) add_flag(m, "large residual");
+    // Is the eigenvalue isolated within ten times its error estimate?
+    if (eng.count(e.lambda + 10 * err) - eng.count(e.lambda - 10 * err) != 1)
+      add_flag(m, "error estimate large relative to the mode spacing");
+    if (!std::isfinite(m.omega2) || !std::isfinite(m.error_estimate)) {
+      add_flag(m, "non-finite result");
+      m.omega2 = m.omega2_fine;
+      m.error_estimate = std::numeric_limits<double>::max();
+    }
+    out.modes.push_back(std::move(m));
+  }
+  return out;
+}
+
+} // namespace radmode

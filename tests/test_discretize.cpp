@@ -1,0 +1,210 @@
+// Finite-element assembly, inertia counts and the generic pencil solver
+// (include/radmode/discretize.hpp, solve_pencil in include/radmode/eigensolve.hpp).
+#include "radmode/discretize.hpp"
+
+#include "analytic_models.hpp"
+#include "radmode/error.hpp"
+
+#include <Eigen/Dense>
+#include <doctest/doctest.h>
+
+#include <cmath>
+
+using namespace radmode;
+
+namespace {
+
+std::vector<double> linspace(double a, double b, std::size_t intervals) {
+  std::vector<double> x(intervals + 1);
+  for (std::size_t i = 0; i <= intervals; ++i)
+    x[i] = a + (b - a) * static_cast<double>(i) / static_cast<double>(intervals);
+  x.back() = b;
+  return x;
+}
+
+/// Legendre's equation -((1 - x^2) y')' = lambda y on (-1, 1): a singular Sturm–Liouville
+/// problem (p vanishes at both ends) whose bounded solutions are the Legendre polynomials,
+/// lambda_k = k (k + 1) (e.g. Abramowitz & Stegun ch. 8; Courant & Hilbert vol. I, ch. V).
+/// Its natural (free) end conditions are exactly the boundedness conditions.
+WeakForm legendre_form(std::size_t intervals) {
+  return sample_form(linspace(-1, 1, intervals), [](std::size_t, double, double x) {
+    FormCoefficients c;
+    c.a = 1 - x * x;
+    c.d = 1;
+    return c;
+  });
+}
+
+Eigen::MatrixXd dense(const std::vector<double>& diag, const std::vector<double>& off) {
+  const auto n = static_cast<Eigen::Index>(diag.size());
+  Eigen::MatrixXd a = Eigen::MatrixXd::Zero(n, n);
+  for (Eigen::Index j = 0; j < n; ++j) {
+    a(j, j) = diag[static_cast<std::size_t>(j)];
+    if (j + 1 < n) a(j, j + 1) = a(j + 1, j) = off[static_cast<std::size_t>(j)];
+  }
+  return a;
+}
+
+} // namespace
+
+TEST_CASE("assembly of -u'' = lambda u reproduces the textbook linear-element matrices") {
+  // Linear elements on a uniform mesh (common practice): K = (1/h) tridiag(-1, 2, -1),
+  // M = (h/6) tridiag(1, 4, 1), end rows halved.
+  const std::size_t n = 10;
+  const double h = 1.0 / n;
+  const auto f = sample_form(linspace(0, 1, n), [](std::size_t, double, double) {
+    FormCoefficients c;
+    c.a = 1;
+    c.d = 1;
+    return c;
+  });
+  const auto p = assemble(f, {all_nodes(f), false, false});
+  REQUIRE(p.size() == n + 1);
+  for (std::size_t j = 0; j <= n; ++j) {
+    const double ends = (j == 0 || j == n) ? 0.5 : 1.0;
+    CHECK(p.k_diag[j] == doctest::Approx(2 / h * ends));
+    CHECK(p.m_diag[j] == doctest::Approx(4 * h / 6 * ends));
+  }
+  for (std::size_t j = 0; j < n; ++j) {
+    CHECK(p.k_off[j] == doctest::Approx(-1 / h));
+    CHECK(p.m_off[j] == doctest::Approx(h / 6));
+  }
+  // Dirichlet at both ends removes the end unknowns.
+  const auto q = assemble(f, {all_nodes(f), true, true});
+  CHECK(q.size() == n - 1);
+  CHECK(q.node.front() == 1);
+  CHECK(q.node.back() == n - 1);
+}
+
+TEST_CASE("a coarse element spanning two base intervals sees the same coefficients") {
+  // Coefficients that jump between base intervals: the coarse mesh must integrate each half
+  // with its own coefficient. For -(a u')' with a = 1 on [0, 0.5] and a = 3 on [0.5, 1], one
+  // coarse element [0, 1] has K = (1/h^2) (0.5 * 1 + 0.5 * 3) = 2 in its (0, 0) entry.
+  const auto f = sample_form({0.0, 0.5, 1.0}, [](std::size_t i, double, double) {
+    FormCoefficients c;
+    c.a = i == 0 ? 1.0 : 3.0;
+    c.d = 1;
+    return c;
+  });
+  const auto p = assemble(f, {{0, 2}, false, false});
+  REQUIRE(p.size() == 2);
+  CHECK(p.k_diag[0] == doctest::Approx(2.0));
+  CHECK(p.k_off[0] == doctest::Approx(-2.0));
+  CHECK(p.m_diag[0] == doctest::Approx(1.0 / 3.0));
+}
+
+TEST_CASE("every_other_node keeps the ends and the flagged nodes") {
+  CHECK(every_other_node(6) == std::vector<std::size_t>{0, 2, 4, 6});
+  CHECK(every_other_node(5) == std::vector<std::size_t>{0, 2, 4, 5});
+  std::vector<bool> keep(8, false);
+  keep[3] = true;
+  CHECK(every_other_node(7, keep) == std::vector<std::size_t>{0, 2, 3, 5, 7});
+}
+
+TEST_CASE("inertia count equals the number of eigenvalues below the shift (dense check)") {
+  // Sylvester's law of inertia, checked against Eigen's dense generalized eigensolver.
+  const auto model = test::uniform_sphere(test::uniform_mesh(60), 1.4);
+  const Structure s(model);
+  const auto p = assemble(make_stellar_form(s, SurfaceCondition::regular),
+                          {all_nodes(make_stellar_form(s, SurfaceCondition::regular)), false, false});
+  Eigen::GeneralizedSelfAdjointEigenSolver<Eigen::MatrixXd> es(dense(p.k_diag, p.k_off),
+                                                               dense(p.m_diag, p.m_off));
+  REQUIRE(es.info() == Eigen::Success);
+  const auto& ev = es.eigenvalues();
+  for (const double shift : {-1.0, 0.0, 0.3, 5.0, 11.0, 100.0, 1e3, 1e4, 1e5}) {
+    int below = 0;
+    for (Eigen::Index j = 0; j < ev.size(); ++j) below += ev(j) < shift ? 1 : 0;
+    CHECK(inertia_below(p, shift) == below);
+  }
+}
+
+TEST_CASE("Legendre's equation through the same assembly and solver: lambda_k = k(k+1)") {
+  PencilRequest req;
+  req.count = 10;
+  std::vector<double> err_prev;
+  for (const std::size_t n : {std::size_t{1000}, std::size_t{2000}}) {
+    const auto f = legendre_form(n);
+    const auto p = assemble(f, {all_nodes(f), false, false});
+    const auto spec = solve_pencil(p, req);
+    REQUIRE(spec.status == SolveStatus::ok);
+    REQUIRE(spec.pairs.size() == 10);
+    std::vector<double> err;
+    for (int k = 0; k < 10; ++k) {
+      const auto& e = spec.pairs[static_cast<std::size_t>(k)];
+      const double exact = k * (k + 1.0);
+      CHECK(e.index == k);
+      CHECK(e.multiplicity == 1);
+      CHECK(e.residual < 1e-9);
+      CHECK(e.lambda == doctest::Approx(exact).epsilon(2e-4).scale(1.0));
+      err.push_back(e.lambda - exact); // > 0: Rayleigh–Ritz bounds from above
+      // P_k has k sign changes on (-1, 1).
+      int changes = 0;
+      for (std::size_t j = 1; j < e.x.size(); ++j) changes += (e.x[j - 1] * e.x[j] < 0) ? 1 : 0;
+      CHECK(changes == k);
+    }
+    if (!err_prev.empty())
+      for (int k = 2; k < 10; ++k) {
+        // Richardson between the two meshes: (4 lambda_2000 - lambda_1000)/3.
+        const double lam = k * (k + 1.0) + err[static_cast<std::size_t>(k)];
+        const double lam_c = k * (k + 1.0) + err_prev[static_cast<std::size_t>(k)];
+        CHECK((4 * lam - lam_c) / 3 == doctest::Approx(k * (k + 1.0)).epsilon(1e-7));
+        const double order =
+            std::log2(err_prev[static_cast<std::size_t>(k)] / err[static_cast<std::size_t>(k)]);
+        MESSAGE("Legendre k = " << k << " observed order " << order);
+        CHECK(order == doctest::Approx(2.0).epsilon(0.05));
+      }
+    err_prev = err;
+  }
+}
+
+TEST_CASE("eigenvectors are M-orthonormal and satisfy K x = lambda M x") {
+  const auto model = test::uniform_sphere(test::uniform_mesh(1999), 5.0 / 3.0);
+  const Structure s(model);
+  const auto f = make_stellar_form(s, SurfaceCondition::regular);
+  const auto p = assemble(f, {all_nodes(f), false, false});
+  PencilRequest req;
+  req.count = 8;
+  const auto spec = solve_pencil(p, req);
+  REQUIRE(spec.pairs.size() == 8);
+  const Eigen::MatrixXd K = dense(p.k_diag, p.k_off), M = dense(p.m_diag, p.m_off);
+  for (std::size_t i = 0; i < 8; ++i) {
+    const Eigen::Map<const Eigen::VectorXd> xi(spec.pairs[i].x.data(), static_cast<Eigen::Index>(p.size()));
+    const Eigen::VectorXd r = K * xi - spec.pairs[i].lambda * (M * xi);
+    CHECK(r.norm() / ((K * xi).norm() + spec.pairs[i].lambda * (M * xi).norm()) < 1e-9);
+    for (std::size_t j = 0; j < 8; ++j) {
+      const Eigen::Map<const Eigen::VectorXd> xj(spec.pairs[j].x.data(), static_cast<Eigen::Index>(p.size()));
+      CHECK(xi.dot(M * xj) == doctest::Approx(i == j ? 1.0 : 0.0).scale(1.0).epsilon(1e-9));
+    }
+  }
+}
+
+TEST_CASE("a window request and a request by index give the same eigenpairs") {
+  const auto f = legendre_form(800);
+  const auto p = assemble(f, {all_nodes(f), false, false});
+  PencilRequest by_index;
+  by_index.first = 4;
+  by_index.count = 3;
+  PencilRequest window;
+  window.window_lo = 15;  // lambda_4 = 20 ... lambda_6 = 42
+  window.window_hi = 50;
+  const auto a = solve_pencil(p, by_index), b = solve_pencil(p, window);
+  REQUIRE(a.pairs.size() == 3);
+  REQUIRE(b.pairs.size() == 3);
+  for (std::size_t i = 0; i < 3; ++i) {
+    CHECK(a.pairs[i].index == static_cast<int>(i) + 4);
+    CHECK(a.pairs[i].lambda == doctest::Approx(b.pairs[i].lambda).epsilon(1e-12));
+  }
+}
+
+TEST_CASE("invalid meshes and selections are rejected") {
+  auto coef = [](std::size_t, double, double) { return FormCoefficients{1, 0, 0, 1}; };
+  CHECK_THROWS_AS(sample_form({0.0, 0.5, 0.5, 1.0}, coef), UsageError);
+  CHECK_THROWS_AS(sample_form({0.0}, coef), UsageError);
+  CHECK_THROWS_AS(sample_form({0.0, 1.0}, coef, 7), UsageError);
+  const auto f = sample_form(linspace(0, 1, 4), coef);
+  CHECK_THROWS_AS(assemble(f, {{0, 2, 3}, false, false}), UsageError); // misses the last node
+  CHECK_THROWS_AS(assemble(f, {{0, 2, 2, 4}, false, false}), UsageError);
+  PencilRequest bad;
+  bad.count = 0;
+  CHECK_THROWS_AS(solve_pencil(assemble(f, {all_nodes(f), false, false}), bad), UsageError);
+}

@@ -39,11 +39,12 @@
 //    0.5 max(|guess|, 1) on both sides of the guess (nearest sign change wins), then refined by
 //    Illinois regula falsi with bisection safeguard, never leaving the bracket.
 //  - Nodes: sign changes of xi along the inner and the (rescaled) outer solution, 0 < r < R.
-//  - Error estimate: the eigenvalue is computed again with a 10x looser tolerance from the
-//    converged value; the difference (which overestimates the error of the tight solve for a
-//    method whose global error scales with the tolerance) plus the final bracket width plus a
-//    floor of rel_tol max(|sigma^2|, 1). When that second solve fails the result is reported as
-//    not converged (a value without an error estimate is not trusted).
+//  - Error estimate: the eigenvalue is computed again with 10x and 100x looser tolerances from
+//    the converged value; the larger of the differences tight-10x and 10x-100x (each
+//    overestimates the error of the tight solve for a method whose global error scales with
+//    the tolerance; taking both guards against one being small by accident) plus the final
+//    bracket width plus a floor of rel_tol max(|sigma^2|, 1). When a looser solve fails the
+//    result is reported as not converged (a value without an error estimate is not trusted).
 //
 // Units: omega2 in s^-2; sigma2 dimensionless.
 #include "radmode/eigensolve.hpp"

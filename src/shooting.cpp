@@ -151,7 +151,7 @@ Evaluation evaluate(const ShootingProblem& problem, double sigma2, double x_matc
   // Inner solution.
   Piece in;
   double x_start = problem.x_inner;
-  if (options.inner == InnerCondition::rigid) {
+  if (options.inner == InnerCondition::rigid && problem.x_inner > 0.0) {
     in.y = {0.0, 1.0};
   } else if (problem.x_inner > 0.0) {
     // The structure has no centre; regularity is imposed at its innermost point (first order).

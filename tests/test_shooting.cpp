@@ -192,6 +192,14 @@ TEST_CASE("fixed surface pressure on a model with P_s > 0, and a rigid inner bou
     }
     ++which;
   }
+  // Rigid inner condition on a model that reaches the centre: same as the regular centre.
+  {
+    ShootOptions rigid;
+    rigid.inner = InnerCondition::rigid;
+    const ShootResult rr = shoot_sigma2(uniform_sphere(5.0 / 3.0), 12.0, rigid);
+    REQUIRE(rr.converged);
+    CHECK(rr.sigma2 == doctest::Approx(38.0 / 3.0).epsilon(1e-9));
+  }
   // Rigid inner boundary at x = 0.3 of a full uniform sphere: xi(0.3) = 0 is not a node, and
   // clamping the inside raises the fundamental above the free sphere's sigma^2 = 1 (a constraint
   // on the trial space can only raise the minimum of the Rayleigh quotient).

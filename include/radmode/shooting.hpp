@@ -23,7 +23,10 @@
 //    V2 = V/x^2 and s = sigma^2 x^3/q taken at x0. Inside the innermost table interval the
 //    structure's linear m would put an r^-2 density cusp at the centre, from which no regular
 //    solution starts; there m = m_1 (r/r_1)^3 and Vp = V (effect on omega^2: O((r_1/R)^5)).
-//    Rigid inner boundary (envelope): xi = 0, p = 1 at the innermost point.
+//    Rigid inner boundary (envelope): xi = 0, p = 1 at the innermost point; a model that
+//    reaches r = 0 gets the regular centre start even then (xi(0) = 0 is no constraint on the
+//    energy functional there: its weight vanishes like r^4, so the finite elements see the
+//    same eigenvalues).
 //  - Surface: where P_s > 0 the integration starts exactly at x = 1 with the chosen condition.
 //    Where P_s = 0, V ~ 1/(1-x) is singular; the integration starts at x = 1 - delta
 //    (delta = min(1e-7, 1e-3 x last interval)) with the regular condition

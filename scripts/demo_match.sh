@@ -6,11 +6,12 @@
 # Debian's python3 has matplotlib, OUTPUT_DIR/ratios.png. Exit status as radmode's.
 set -euo pipefail
 root="$(cd "$(dirname "${BASH_SOURCE[0]}")/.." && pwd)"
-radmode="${1:-$root/build/radmode}"
-out="${2:-$root/build/demo}"
-mkdir -p "$out"
-star="$root/models/demo_star_obs.txt"
-grid="$root/models/grid/list.txt"
+radmode="$(realpath "${1:-$root/build/radmode}")"
+mkdir -p "${2:-$root/build/demo}"
+out="$(realpath "${2:-$root/build/demo}")"
+cd "$root" # model paths in the reports relative to the repository
+star="models/demo_star_obs.txt"
+grid="models/grid/list.txt"
 
 echo "== radmode match: an invented double-mode star against a grid of generated models =="
 echo "\$ radmode match --list models/grid/list.txt --observed models/demo_star_obs.txt --top 5"
@@ -24,7 +25,7 @@ echo "\$ radmode match --list models/grid/list.txt --observed models/demo_star_o
 "$radmode" match --list "$grid" --observed "$star" --fit-radius --json -o "$out/match_fit.json"
 
 if /usr/bin/python3 -c 'import matplotlib' 2> /dev/null; then
-  /usr/bin/python3 "$root/scripts/plot_ratios.py" "$out/match.json" -o "$out/ratios.png"
+  /usr/bin/python3 scripts/plot_ratios.py "$out/match.json" -o "$out/ratios.png"
 else
   echo "(no /usr/bin/python3 with matplotlib: plot skipped)"
 fi

@@ -64,8 +64,8 @@ public:
       double d = m_p.k_diag[j] - s * m_p.m_diag[j];
       if (j > 0) d -= m_l[j - 1] * (m_p.k_off[j - 1] - s * m_p.m_off[j - 1]);
       if (std::abs(d) < floor) d = d < 0 ? -floor : floor; // exactly singular: stay finite
-      m_d[j] = d;
-      if (j + 1 < n) m_l[j] = (m_p.k_off[j] - s * m_p.m_off[j]) / d;
+      m_d[j] = 1.0 / d; // stored inverted: the solves multiply
+      if (j + 1 < n) m_l[j] = (m_p.k_off[j] - s * m_p.m_off[j]) * m_d[j];
     }
   }
 
@@ -75,14 +75,27 @@ public:
     if (x == nullptr || y == nullptr || n == 0) return; // (Spectra never passes null)
     y[0] = x[0];
     for (std::size_t j = 1; j < n; ++j) y[j] = x[j] - m_l[j - 1] * y[j - 1];
-    for (std::size_t j = 0; j < n; ++j) y[j] /= m_d[j];
+    for (std::size_t j = 0; j < n; ++j) y[j] *= m_d[j];
     for (std::size_t j = n - 1; j-- > 0;) y[j] -= m_l[j] * y[j + 1];
   }
 
 private:
   const TridiagonalPencil& m_p;
-  std::vector<double> m_d, m_l;
+  std::vector<double> m_d, m_l; ///< inverse pivots 1/d_j, multipliers l_j
 };
+
+/// One step of inverse iteration x <- (K - s M)^{-1} M x with the factorization f, scaled to
+/// max |x| = 1 (mx: workspace). False when the result is zero or not finite.
+bool inverse_step(const TridiagonalPencil& p, const Ldlt& f, std::vector<double>& x,
+                  std::vector<double>& mx) {
+  mult(p.m_diag, p.m_off, x.data(), mx.data());
+  f.solve(mx.data(), x.data());
+  double big = 0;
+  for (const double v : x) big = std::max(big, std::abs(v));
+  if (!(big > 0) || !std::isfinite(big)) return false;
+  for (double& v : x) v /= big;
+  return true;
+}
 
 /// Spectra operation: y = (K - sigma M)^{-1} x.
 class ShiftInvertOp {
@@ -208,6 +221,23 @@ struct Engine {
     return true;
   }
 
+  /// Rayleigh quotient only (lambda field), x untouched.
+  PencilEigenpair finish_quotient_only(const std::vector<double>& x) const {
+    double xkx = 0, xmx = 0;
+    const std::size_t m = p.size();
+    for (std::size_t j = 0; j < m; ++j) {
+      xkx += p.k_diag[j] * x[j] * x[j];
+      xmx += p.m_diag[j] * x[j] * x[j];
+    }
+    for (std::size_t j = 0; j + 1 < m; ++j) {
+      xkx += 2 * p.k_off[j] * x[j] * x[j + 1];
+      xmx += 2 * p.m_off[j] * x[j] * x[j + 1];
+    }
+    PencilEigenpair e;
+    e.lambda = xkx / xmx;
+    return e;
+  }
+
   /// Fills lambda (Rayleigh quotient), M-normalized x, residual, index and multiplicity.
   PencilEigenpair finish(std::vector<double> x) {
     const std::size_t m = p.size();
@@ -245,14 +275,8 @@ struct Engine {
     Ldlt f(p);
     f.factor(mu);
     std::vector<double> mx(p.size());
-    for (int it = 0; it < 6; ++it) {
-      mult(p.m_diag, p.m_off, x.data(), mx.data());
-      f.solve(mx.data(), x.data());
-      double big = 0;
-      for (const double v : x) big = std::max(big, std::abs(v));
-      if (!(big > 0) || !std::isfinite(big)) break;
-      for (double& v : x) v /= big;
-    }
+    for (int it = 0; it < 6; ++it)
+      if (!inverse_step(p, f, x, mx)) break;
     return finish(std::move(x));
   }
 
@@ -297,6 +321,123 @@ std::vector<std::vector<double>> dense_solve(const TridiagonalPencil& p, int fir
     xs.emplace_back(v.data(), v.data() + n);
   }
   return xs;
+}
+
+/// Keeps one pair per target index in [i0, i1) (verified by inertia), recovers the missing
+/// ones by bisection + inverse iteration, sorts, and sets status and message.
+void finalize(Engine& eng, std::vector<PencilEigenpair> found, int i0, int i1, PencilSpectrum& out) {
+  const int nev = i1 - i0;
+  // Residuals of eigenvalues near zero are normalized with the largest |lambda| requested.
+  double lambda_ref = 0;
+  for (const auto& e : found)
+    if (std::isfinite(e.lambda)) lambda_ref = std::max(lambda_ref, std::abs(e.lambda));
+  if (lambda_ref > 0) {
+    eng.lambda_ref = lambda_ref;
+    for (auto& e : found)
+      if (std::abs(e.lambda) < lambda_ref) e = eng.finish(std::move(e.x));
+  }
+
+  // Keep one pair per target index (verified by inertia); recover the missing ones.
+  std::vector<std::optional<PencilEigenpair>> slot(static_cast<std::size_t>(nev));
+  for (auto& e : found) {
+    // Accepted only when inertia sees exactly one eigenvalue at lambda and x is an eigenvector.
+    if (e.index < i0 || e.index >= i1 || !std::isfinite(e.lambda) || e.multiplicity != 1 ||
+        !(e.residual < 1e-6))
+      continue;
+    auto& s = slot[static_cast<std::size_t>(e.index - i0)];
+    if (!s || e.residual < s->residual) s = std::move(e);
+  }
+  double low_bracket = std::numeric_limits<double>::quiet_NaN();
+  double high_bracket = std::numeric_limits<double>::quiet_NaN();
+  for (int j = i0; j < i1; ++j) {
+    auto& s = slot[static_cast<std::size_t>(j - i0)];
+    if (s) continue;
+    if (std::isnan(low_bracket)) {
+      low_bracket = eng.below_lowest();
+      high_bracket = eng.above_highest();
+    }
+    // Tightest bracket from the neighbours already found.
+    double lo = low_bracket, hi = high_bracket;
+    for (const auto& o : slot)
+      if (o && o->index < j) lo = std::max(lo, o->lambda);
+      else if (o && o->index > j) hi = std::min(hi, o->lambda);
+    s = eng.recover(j, lo, hi);
+    if (s) ++out.recovered;
+  }
+  int missing = 0;
+  for (auto& s : slot) {
+    if (s) out.pairs.push_back(std::move(*s));
+    else ++missing;
+  }
+  std::sort(out.pairs.begin(), out.pairs.end(),
+            [](const PencilEigenpair& a, const PencilEigenpair& b) { return a.lambda < b.lambda; });
+  if (missing > 0) {
+    if (out.status == SolveStatus::ok) out.status = SolveStatus::not_converged;
+    out.message += (out.message.empty() ? "" : "; ") + std::to_string(missing) +
+                   " requested eigenvalue(s) could not be established";
+  } else if (out.status == SolveStatus::ok && out.recovered > 0) {
+    out.message += (out.message.empty() ? "" : "; ") + std::to_string(out.recovered) +
+                   " eigenvalue(s) recovered by inertia bisection and inverse iteration";
+  }
+}
+
+/// Rayleigh quotient iteration from good start vectors (e.g. eigenvectors of a coarser mesh
+/// prolonged to this one): two to four steps, each an O(N) LDL^T factorization and solve, then the
+/// same inertia verification and recovery as solve_pencil.
+PencilSpectrum refine_from(const TridiagonalPencil& p, int i0, int i1,
+                           std::vector<std::vector<double>> starts) {
+  Engine eng(p);
+  PencilSpectrum out;
+  std::vector<PencilEigenpair> found;
+  Ldlt f(p);
+  std::vector<double> mx(p.size());
+  for (auto& x : starts) {
+    double previous = std::numeric_limits<double>::quiet_NaN();
+    for (int it = 0; it < 4; ++it) {
+      const PencilEigenpair e = eng.finish_quotient_only(x);
+      if (!std::isfinite(e.lambda)) break;
+      // Converged once the quotient stops moving (cubic convergence: one step after that
+      // would change nothing); at least two steps from the prolonged vector.
+      if (it >= 2 && std::abs(e.lambda - previous) <= 1e-14 * std::abs(e.lambda) + 4 * eps * eng.scale)
+        break;
+      previous = e.lambda;
+      f.factor(e.lambda);
+      if (!inverse_step(p, f, x, mx)) break;
+    }
+    found.push_back(eng.finish(std::move(x)));
+  }
+  finalize(eng, std::move(found), i0, i1, out);
+  return out;
+}
+
+/// Linear interpolation of a coarse-mesh vector onto the fine mesh (both meshes select nodes
+/// of the same base mesh x; a Dirichlet end removed from a pencil counts as 0).
+std::vector<double> prolong(const std::vector<double>& x, const TridiagonalPencil& coarse,
+                            const std::vector<double>& xc, const TridiagonalPencil& fine) {
+  const std::size_t last = x.size() - 1;
+  std::vector<std::size_t> cn;
+  std::vector<double> cv;
+  cn.reserve(coarse.size() + 2);
+  cv.reserve(coarse.size() + 2);
+  if (coarse.node.front() != 0) {
+    cn.push_back(0);
+    cv.push_back(0.0);
+  }
+  cn.insert(cn.end(), coarse.node.begin(), coarse.node.end());
+  cv.insert(cv.end(), xc.begin(), xc.end());
+  if (cn.back() != last) {
+    cn.push_back(last);
+    cv.push_back(0.0);
+  }
+  std::vector<double> out(fine.size());
+  std::size_t k = 0;
+  for (std::size_t j = 0; j < fine.size(); ++j) {
+    const std::size_t b = fine.node[j];
+    while (k + 2 < cn.size() && cn[k + 1] < b) ++k;
+    const double t = (x[b] - x[cn[k]]) / (x[cn[k + 1]] - x[cn[k]]);
+    out[j] = (1 - t) * cv[k] + t * cv[k + 1];
+  }
+  return out;
 }
 
 } // namespace
@@ -384,55 +525,7 @@ PencilSpectrum solve_pencil(const TridiagonalPencil& p, const PencilRequest& req
     }
   }
 
-  // Residuals of eigenvalues near zero are normalized with the largest |lambda| requested.
-  double lambda_ref = 0;
-  for (const auto& e : found)
-    if (std::isfinite(e.lambda)) lambda_ref = std::max(lambda_ref, std::abs(e.lambda));
-  if (lambda_ref > 0) {
-    eng.lambda_ref = lambda_ref;
-    for (auto& e : found)
-      if (std::abs(e.lambda) < lambda_ref) e = eng.finish(std::move(e.x));
-  }
-
-  // 3. Keep one pair per target index (verified by inertia); recover the missing ones.
-  std::vector<std::optional<PencilEigenpair>> slot(static_cast<std::size_t>(nev));
-  for (auto& e : found) {
-    if (e.index < i0 || e.index >= i1 || !std::isfinite(e.lambda)) continue;
-    auto& s = slot[static_cast<std::size_t>(e.index - i0)];
-    if (!s || e.residual < s->residual) s = std::move(e);
-  }
-  double low_bracket = std::numeric_limits<double>::quiet_NaN();
-  double high_bracket = std::numeric_limits<double>::quiet_NaN();
-  for (int j = i0; j < i1; ++j) {
-    auto& s = slot[static_cast<std::size_t>(j - i0)];
-    if (s) continue;
-    if (std::isnan(low_bracket)) {
-      low_bracket = eng.below_lowest();
-      high_bracket = eng.above_highest();
-    }
-    // Tightest bracket from the neighbours already found.
-    double lo = low_bracket, hi = high_bracket;
-    for (const auto& o : slot)
-      if (o && o->index < j) lo = std::max(lo, o->lambda);
-      else if (o && o->index > j) hi = std::min(hi, o->lambda);
-    s = eng.recover(j, lo, hi);
-    if (s) ++out.recovered;
-  }
-  int missing = 0;
-  for (auto& s : slot) {
-    if (s) out.pairs.push_back(std::move(*s));
-    else ++missing;
-  }
-  std::sort(out.pairs.begin(), out.pairs.end(),
-            [](const PencilEigenpair& a, const PencilEigenpair& b) { return a.lambda < b.lambda; });
-  if (missing > 0) {
-    if (out.status == SolveStatus::ok) out.status = SolveStatus::not_converged;
-    out.message += (out.message.empty() ? "" : "; ") + std::to_string(missing) +
-                   " requested eigenvalue(s) could not be established";
-  } else if (out.status == SolveStatus::ok && out.recovered > 0) {
-    out.message += (out.message.empty() ? "" : "; ") + std::to_string(out.recovered) +
-                   " eigenvalue(s) recovered by inertia bisection and inverse iteration";
-  }
+  finalize(eng, std::move(found), i0, i1, out);
   return out;
 }
 
@@ -491,42 +584,78 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
   const MeshSelection fine{all_nodes(form), rigid, false};
   const TridiagonalPencil pf = assemble(form, fine);
 
+  // Target indices [i0, i1): eigenvalue index = inertia count.
+  Engine eng(pf);
+  const int n_fine = eng.n;
+  int i0 = 0, i1 = 0;
   PencilRequest request;
   if (options.window_lo_omega2) {
     request.window_lo = *options.window_lo_omega2 / unit;
     request.window_hi = *options.window_hi_omega2 / unit;
+    i0 = eng.count(*request.window_lo);
+    i1 = eng.count(*request.window_hi);
   } else {
     request.count = options.count;
+    i1 = std::min(options.count, n_fine);
   }
-  PencilSpectrum sf = solve_pencil(pf, request);
 
   ModeSet out;
   out.node_r = s.node_r();
-  out.status = sf.status;
-  out.message = sf.message;
-  out.iterations = sf.iterations;
-  if (sf.pairs.empty()) return out;
+  if (i1 <= i0) return out; // an empty window
 
-  // Richardson partner: the same indices on the every-other-node mesh.
+  // Richardson partner mesh: every other node (discontinuities kept).
+  const MeshSelection coarse{every_other_node(form, s.discontinuity()), rigid, false};
+  const std::size_t coarse_unknowns = coarse.nodes.size() - (rigid ? 1 : 0);
+  std::optional<TridiagonalPencil> pc;
+  if (coarse_unknowns >= 2) pc = assemble(form, coarse);
+
+  // Nested iteration: Spectra on the coarse mesh, then Rayleigh quotient iteration on the fine
+  // mesh from the prolonged coarse eigenvectors (both results are needed for Richardson). When
+  // the coarse mesh is too small for the request, Spectra runs on the fine mesh directly.
   std::optional<PencilSpectrum> sc;
-  std::optional<TridiagonalPencil> pi; // fine mesh, coefficients from every other table row
-  if (options.richardson) {
-    const MeshSelection coarse{every_other_node(form, s.discontinuity()), rigid, false};
-    const std::size_t unknowns = coarse.nodes.size() - (rigid ? 1 : 0);
-    if (unknowns >= 2) {
-      const TridiagonalPencil pc = assemble(form, coarse);
+  PencilSpectrum sf;
+  bool nested = false;
+  PencilRequest by_index;
+  by_index.first = i0;
+  by_index.count = i1 - i0;
+  if (pc && static_cast<int>(pc->size()) >= 2 * i1 + 20) {
+    sc = solve_pencil(*pc, by_index);
+    if (sc->status == SolveStatus::ok && static_cast<int>(sc->pairs.size()) == i1 - i0) {
+      std::vector<std::vector<double>> starts;
+      starts.reserve(sc->pairs.size());
+      for (const auto& c : sc->pairs) starts.push_back(prolong(form.x, *pc, c.x, pf));
+      sf = refine_from(pf, i0, i1, std::move(starts));
+      sf.iterations = sc->iterations;
+      nested = true;
+    }
+  }
+  if (!nested) {
+    sf = solve_pencil(pf, request);
+    if (options.richardson && pc && !sf.pairs.empty()) {
       PencilRequest rc;
       rc.first = sf.pairs.front().index;
       rc.count = sf.pairs.back().index - rc.first + 1;
-      sc = solve_pencil(pc, rc);
-      if (sc->status != SolveStatus::ok)
-        out.message += (out.message.empty() ? "" : "; ") + std::string("coarse mesh: ") + sc->message;
+      sc = solve_pencil(*pc, rc);
     }
+  }
+  if (!options.window_lo_omega2 && options.count > n_fine) {
+    sf.status = SolveStatus::fewer_modes;
+    sf.message = "requested " + std::to_string(options.count) + " modes but the mesh has only " +
+                 std::to_string(n_fine) + " unknowns";
+  }
+  out.status = sf.status;
+  out.message = sf.message;
+  out.iterations = sf.iterations;
+  if (options.richardson && sc && sc->status != SolveStatus::ok)
+    out.message += (out.message.empty() ? "" : "; ") + std::string("coarse mesh: ") + sc->message;
+  if (!options.richardson) sc.reset();
+
+  // Interpolation sensitivity: fine mesh, coefficients from every other table row.
+  std::optional<TridiagonalPencil> pi;
+  if (options.richardson)
     if (const auto half = every_other_row(s))
       pi = assemble(make_stellar_form(s, options.surface, &*half), fine);
-  }
 
-  Engine eng(pf);
   for (auto& e : sf.pairs) {
     ModeSolution m;
     m.trusted = true;
@@ -589,9 +718,17 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
       add_flag(m, "inertia sees " + std::to_string(m.inertia_multiplicity) +
                       " eigenvalues at this omega^2");
     if (!(m.residual <= 1e-8)) add_flag(m, "large residual");
-    // Is the eigenvalue isolated within ten times its error estimate?
-    if (eng.count(e.lambda + 10 * err) - eng.count(e.lambda - 10 * err) != 1)
-      add_flag(m, "error estimate large relative to the mode spacing");
+    // Is the eigenvalue isolated within ten times its error estimate? Neighbours solved
+    // together are compared directly; beyond the ends of the set, inertia counts tell.
+    const std::size_t at = static_cast<std::size_t>(&e - sf.pairs.data());
+    const bool below_known = at > 0 && sf.pairs[at - 1].index == e.index - 1;
+    const bool above_known = at + 1 < sf.pairs.size() && sf.pairs[at + 1].index == e.index + 1;
+    bool crowded = false;
+    if (below_known) crowded = crowded || sf.pairs[at - 1].lambda >= e.lambda - 10 * err;
+    else crowded = crowded || eng.count(e.lambda - 10 * err) != e.index;
+    if (above_known) crowded = crowded || sf.pairs[at + 1].lambda <= e.lambda + 10 * err;
+    else crowded = crowded || eng.count(e.lambda + 10 * err) != e.index + 1;
+    if (crowded) add_flag(m, "error estimate large relative to the mode spacing");
     if (!std::isfinite(m.omega2) || !std::isfinite(m.error_estimate)) {
       add_flag(m, "non-finite result");
       m.omega2 = m.omega2_fine;

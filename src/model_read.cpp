@@ -293,23 +293,33 @@ void TableReader::set_up_native(std::string_view header) {
 }
 
 void TableReader::set_up_mapped(std::string_view first, bool& first_is_data) {
-  // Fields of the first content line: a header unless every field is a number.
   std::vector<std::string_view> fields;
   {
     FieldCursor cur(first);
     std::string_view field;
     while (cur.next(field)) fields.push_back(field);
   }
-  const bool all_numbers = std::all_of(fields.begin(), fields.end(),
-                                       [](std::string_view f) { return bool(parse_number(f)); });
   const bool by_name_needed =
       std::any_of(m_options.columns.begin(), m_options.columns.end(),
                   [](const auto& c) { return !is_column_number(c.second.source); });
-  first_is_data = all_numbers;
-  if (all_numbers && by_name_needed)
-    throw InputError(ErrorKind::missing_column, at(m_line_no),
-                     "the column map names columns by header name, but this first table line "
-                     "holds only numbers; expected a header line (or map columns by number)");
+  if (by_name_needed) {
+    // The first content line must be the header.
+    if (std::all_of(fields.begin(), fields.end(),
+                    [](std::string_view f) { return bool(parse_number(f)); }))
+      throw InputError(ErrorKind::missing_column, at(m_line_no),
+                       "the column map names columns by header name, but this first table "
+                       "line holds only numbers; expected a header line (or map columns by "
+                       "number)");
+    first_is_data = false;
+  } else {
+    // Every column by number: the first content line is data when all its mapped fields are
+    // numbers (unmapped fields may hold text), otherwise a header.
+    first_is_data =
+        std::all_of(m_options.columns.begin(), m_options.columns.end(), [&fields](const auto& c) {
+          const std::size_t k = column_number(c.second.source);
+          return k > fields.size() || bool(parse_number(fields[k - 1]));
+        });
+  }
   if (!first_is_data) m_header_line = m_line_no;
 
   m_targets.assign(fields.size(), Target{ignored, Unit{}});

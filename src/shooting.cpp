@@ -151,7 +151,7 @@ Evaluation evaluate(const ShootingProblem& problem, double sigma2, double x_matc
   // Inner solution.
   Piece in;
   double x_start = problem.x_inner;
-  if (options.inner == InnerCondition::rigid) {
+  if (options.inner == InnerCondition::rigid && problem.x_inner > 0.0) {
     in.y = {0.0, 1.0};
   } else if (problem.x_inner > 0.0) {
     // The structure has no centre; regularity is imposed at its innermost point (first order).
@@ -366,19 +366,27 @@ ShootResult shoot_checked(const ShootingProblem& problem, double sigma2_guess,
     if (!note.empty()) result.message += "; " + note;
     return result;
   }
-  // Error estimate from a second solve at a 10x looser tolerance.
-  const double loose_tol = std::min(1e-3, 10.0 * options.rel_tol);
-  const Root loose = find_root(problem, tight.sigma2, x_match, options, loose_tol);
-  result.iterations += loose.iterations;
-  const double floor = options.rel_tol * std::max(std::abs(tight.sigma2), 1.0);
-  if (!loose.converged) {
-    // Without an error estimate the value cannot be trusted: report it as not converged.
-    result.message = "no error estimate: the solve at tolerance " + num(loose_tol) +
-                     " failed (" + loose.message + ")";
-    if (!note.empty()) result.message += "; " + note;
-    return result;
+  // Error estimate from solves at 10x and 100x looser tolerances: the larger of the two
+  // successive differences. With a regular method either overestimates the error of the tight
+  // value; taking both guards against a difference that is small by accident (seen when the
+  // number of steps per table interval changes between tolerances).
+  double spread = 0, spread_ref = tight.sigma2;
+  for (double factor : {10.0, 100.0}) {
+    const double loose_tol = std::min(1e-3, factor * options.rel_tol);
+    const Root loose = find_root(problem, tight.sigma2, x_match, options, loose_tol);
+    result.iterations += loose.iterations;
+    if (!loose.converged) {
+      // Without an error estimate the value cannot be trusted: report it as not converged.
+      result.message = "no error estimate: the solve at tolerance " + num(loose_tol) +
+                       " failed (" + loose.message + ")";
+      if (!note.empty()) result.message += "; " + note;
+      return result;
+    }
+    spread = std::max(spread, std::abs(loose.sigma2 - spread_ref)); // vs the previous tolerance
+    spread_ref = loose.sigma2;
   }
-  result.error_estimate = std::abs(loose.sigma2 - tight.sigma2) + tight.width + floor;
+  const double floor = options.rel_tol * std::max(std::abs(tight.sigma2), 1.0);
+  result.error_estimate = spread + tight.width + floor;
   result.converged = true;
   result.message = note;
   return result;

@@ -92,13 +92,12 @@ Structure::Structure(const StellarModel& model, InnerCondition inner)
   {
     std::vector<double> lnrho(n, 0.0);
     for (std::size_t j = 0; j < n; ++j) lnrho[j] = t.rho[j] > 0 ? std::log(t.rho[j]) : 0.0;
+    // Runs of rows with rho > 0 and no repeated radius inside.
     std::size_t lo = 0;
     for (std::size_t j = 1; j <= n; ++j) {
-      if (j < n && t.r[j] != t.r[j - 1]) continue;
-      const std::size_t hi = j - 1; // segment [lo, hi]
-      bool positive = true;
-      for (std::size_t k = lo; k <= hi; ++k) positive = positive && t.rho[k] > 0;
-      if (hi > lo && positive)
+      if (j < n && t.r[j] != t.r[j - 1] && t.rho[j] > 0 && t.rho[j - 1] > 0) continue;
+      const std::size_t hi = j - 1; // run [lo, hi]
+      if (hi > lo && t.rho[lo] > 0)
         for (std::size_t k = lo; k <= hi; ++k) dlnrho[k] = fd_slope(t.r, lnrho, k, lo, hi);
       lo = j;
     }

@@ -196,6 +196,9 @@ void TrackOptions::validate() const {
   if (jobs < 0 || jobs > 4096)
     throw UsageError("--jobs " + std::to_string(jobs) +
                      ": expected a number of threads 1..4096 (0 = all cores)");
+  SolveOptions s = solve;
+  s.count = count;
+  s.validate();
 }
 
 int TrackOptions::effective_jobs() const {

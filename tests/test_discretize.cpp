@@ -95,10 +95,13 @@ TEST_CASE("a coarse element spanning two base intervals sees the same coefficien
 
 TEST_CASE("every_other_node keeps the ends and the flagged nodes") {
   CHECK(every_other_node(6) == std::vector<std::size_t>{0, 2, 4, 6});
-  CHECK(every_other_node(5) == std::vector<std::size_t>{0, 2, 4, 5});
+  CHECK(every_other_node(5) == std::vector<std::size_t>{0, 1, 3, 5});
   std::vector<bool> keep(8, false);
   keep[3] = true;
-  CHECK(every_other_node(7, keep) == std::vector<std::size_t>{0, 2, 3, 5, 7});
+  CHECK(every_other_node(7, keep) == std::vector<std::size_t>{0, 1, 3, 5, 7});
+  keep[3] = false;
+  keep[4] = true;
+  CHECK(every_other_node(7, keep) == std::vector<std::size_t>{0, 2, 4, 5, 7});
 }
 
 TEST_CASE("inertia count equals the number of eigenvalues below the shift (dense check)") {

@@ -225,7 +225,7 @@ TEST_CASE("foreign table through a column map gives the same model as the native
   std::string t = "== invented evolution code, model 17 ==\nage 1.2e9 yr\n"
                   "zone logP radius mass X density G1 lum\n";
   for (std::size_t i = p.r_sun.size(); i-- > 0;)
-    t += std::to_string(i + 1) + " " + num(p.logP[i]) + " " + num(p.r_sun[i]) + " " +
+    t += "z" + std::to_string(i + 1) + " " + num(p.logP[i]) + " " + num(p.r_sun[i]) + " " +
          num(p.m_sun[i]) + " " + num(p.X[i]) + " " + num(p.rho[i]) + " " + num(p.gamma1[i]) + " " +
          num(p.L_sun[i]) + "\n";
 
@@ -243,7 +243,7 @@ TEST_CASE("foreign table through a column map gives the same model as the native
     opt.skip_lines = 2;
     check_same(native, parse_model(t, "foreign.txt", opt));
   }
-  SUBCASE("by number without a header line") {
+  SUBCASE("by number without a header line (the text column is not read)") {
     auto opt = parse_column_map("r=3:Rsun,m=4:Msun,P=2:log10,rho=6,Gamma1=7,L=8:Lsun");
     opt.skip_lines = 3;
     check_same(native, parse_model(t, "foreign.txt", opt));

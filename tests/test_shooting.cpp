@@ -1,6 +1,8 @@
 // Tests of the shooting solver (shooting.hpp) against closed-form results.
 #include "radmode/constants.hpp"
+#include "radmode/eigensolve.hpp"
 #include "radmode/error.hpp"
+#include "radmode/generators.hpp"
 #include "radmode/shooting.hpp"
 
 #include "analytic_models.hpp"
@@ -190,6 +192,14 @@ TEST_CASE("fixed surface pressure on a model with P_s > 0, and a rigid inner bou
     }
     ++which;
   }
+  // Rigid inner condition on a model that reaches the centre: same as the regular centre.
+  {
+    ShootOptions rigid;
+    rigid.inner = InnerCondition::rigid;
+    const ShootResult rr = shoot_sigma2(uniform_sphere(5.0 / 3.0), 12.0, rigid);
+    REQUIRE(rr.converged);
+    CHECK(rr.sigma2 == doctest::Approx(38.0 / 3.0).epsilon(1e-9));
+  }
   // Rigid inner boundary at x = 0.3 of a full uniform sphere: xi(0.3) = 0 is not a node, and
   // clamping the inside raises the fundamental above the free sphere's sigma^2 = 1 (a constraint
   // on the trial space can only raise the minimum of the Rayleigh quotient).
@@ -354,4 +364,106 @@ TEST_CASE("verify_modes compares a ModeSet by shooting") {
   CHECK(bad[1].rel_diff == doctest::Approx(0.01 / 1.01).epsilon(1e-3));
   CHECK_FALSE(bad[2].nodes_agree);
   CHECK_FALSE(bad[2].agrees);
+}
+
+TEST_CASE("finite elements against shooting: polytropes n = 1.5 and 3, first five modes") {
+  // Two independent solutions of the same interpolated model (structure.hpp): Galerkin finite
+  // elements with Richardson extrapolation (eigensolve.hpp) and shooting. They must agree to
+  // the combined error estimates, and the shooting's node count must equal the FE order.
+  // The check is also made without the FE estimate's share for interpolation between table
+  // rows (ModeSolution::interpolation_error), which both methods see identically.
+  for (double n : {1.5, 3.0}) {
+    GeneratorOptions g;
+    g.points = 1000;
+    const StellarModel model = make_polytrope(n, g);
+    const ModeSet set = solve_modes(model); // 5 modes, regular surface, centre
+    REQUIRE(set.status == SolveStatus::ok);
+    REQUIRE(set.modes.size() == 5);
+    const std::vector<VerifyResult> check = verify_modes(model, set);
+    REQUIRE(check.size() == 5);
+    for (std::size_t k = 0; k < check.size(); ++k) {
+      const VerifyResult& v = check[k];
+      const ModeSolution& fe = set.modes[k];
+      CAPTURE(n);
+      CAPTURE(k);
+      CAPTURE(v.shoot.message);
+      CAPTURE(v.rel_diff);
+      CAPTURE(fe.error_estimate / std::abs(fe.omega2));
+      CAPTURE(v.shoot.error_estimate / std::abs(fe.omega2));
+      CHECK(fe.order == static_cast<int>(k));
+      CHECK(v.shoot.converged);
+      CHECK(v.shoot.nodes == static_cast<int>(k));
+      CHECK(v.nodes_agree);
+      CHECK(v.agrees);
+      const double discretization_only = fe.error_estimate - fe.interpolation_error;
+      CHECK(v.abs_diff <= 3.0 * (discretization_only + v.shoot.error_estimate));
+      // Not a trivially wide window: the combined estimate is a small fraction of omega^2.
+      CHECK(v.tolerance < 1e-3 * std::abs(fe.omega2));
+      // The FE estimate is that of the fine-mesh value; the extrapolated value is far better
+      // (measured at 1000 points: |FE - shooting| between 1e-11 and 2e-4 of the estimate).
+      CHECK(v.abs_diff < 1e-2 * fe.error_estimate);
+    }
+  }
+}
+
+TEST_CASE("finite elements against shooting: generated uniform sphere, dynamically unstable") {
+  // Gamma1 = 1.3: omega_0^2 = (3 Gamma1 - 4) GM/R^3 < 0 (Ledoux; Sterne 1937). Both methods
+  // must find the negative fundamental and agree with each other and with the closed form.
+  GeneratorOptions g;
+  g.points = 400;
+  g.gamma1 = 1.3;
+  const StellarModel model = make_uniform(g);
+  SolveOptions so;
+  so.count = 3;
+  const ModeSet set = solve_modes(model, so);
+  REQUIRE(set.modes.size() == 3);
+  const auto check = verify_modes(model, set);
+  const double unit = constants::G * model.mass() / std::pow(model.radius(), 3);
+  for (std::size_t k = 0; k < check.size(); ++k) {
+    CAPTURE(k);
+    CAPTURE(check[k].shoot.message);
+    CHECK(check[k].agrees);
+    CHECK(check[k].omega2_shoot ==
+          doctest::Approx(sterne(1.3, static_cast<int>(k)) * unit).epsilon(1e-7));
+  }
+  CHECK(check[0].omega2_shoot < 0.0);
+}
+
+TEST_CASE("Gamma1 discontinuity in a uniform sphere: table-independent shooting, FE agrees") {
+  // Uniform sphere with Gamma1 = 5/3 inside r = R/2 and 1.4 outside (a repeated row at R/2).
+  // P, rho and m are reproduced exactly by the structure's interpolation (structure.hpp), so the
+  // shooting eigenvalue must not depend on the table spacing. Variational bound (physics.md
+  // section 4: K[xi] grows with Gamma1 at every r, so every eigenvalue does): each sigma_k^2
+  // lies strictly between Sterne's values (Sterne 1937) for Gamma1 = 1.4 and 5/3.
+  auto model_with = [](std::size_t intervals) {
+    const std::vector<double> x = test::uniform_mesh(intervals);
+    const auto half = static_cast<std::size_t>(
+        std::lower_bound(x.begin(), x.end(), 0.5 - 1e-12) - x.begin());
+    StellarModel m = test::uniform_sphere(x, 5.0 / 3.0);
+    for (auto* v : {&m.r, &m.m, &m.P, &m.rho, &m.gamma1})
+      v->insert(v->begin() + static_cast<std::ptrdiff_t>(half), (*v)[half]);
+    for (std::size_t j = half + 1; j < m.gamma1.size(); ++j) m.gamma1[j] = 1.4;
+    return m;
+  };
+  const StellarModel coarse = model_with(200);
+  const StellarModel fine = model_with(400);
+  const double unit = constants::G * fine.mass() / std::pow(fine.radius(), 3);
+  SolveOptions so;
+  so.count = 4;
+  const ModeSet set = solve_modes(fine, so);
+  REQUIRE(set.modes.size() == 4);
+  const auto check = verify_modes(fine, set);
+  for (std::size_t k = 0; k < check.size(); ++k) {
+    const int kk = static_cast<int>(k);
+    const ShootResult rc = shoot_mode(coarse, set.modes[k].omega2);
+    CAPTURE(k);
+    CAPTURE(check[k].shoot.message);
+    REQUIRE(rc.converged);
+    CHECK(check[k].agrees);
+    CHECK(rc.nodes == kk);
+    CHECK(rc.omega2 == doctest::Approx(check[k].omega2_shoot).epsilon(1e-9));
+    const double s2 = check[k].omega2_shoot / unit;
+    CHECK(s2 > sterne(1.4, kk));
+    CHECK(s2 < sterne(5.0 / 3.0, kk));
+  }
 }

@@ -5,6 +5,7 @@
 
 #include "radmode/constants.hpp"
 #include "radmode/error.hpp"
+#include "radmode/generators.hpp"
 #include "analytic_models.hpp"
 
 #include <doctest/doctest.h>
@@ -173,4 +174,106 @@ TEST_CASE("invalid stability options") {
   o = {};
   o.marginal_sigma2 = -1;
   CHECK_THROWS_WITH_AS(o.validate(), doctest::Contains("marginal_sigma2"), UsageError);
+}
+// Part 2: the verdict from the finite-element fundamental (solve_modes) on generated models.
+namespace {
+
+StabilityVerdict solved_verdict(const StellarModel& model, const DiagnosticsOptions& dopt = {}) {
+  SolveOptions so;
+  so.count = 1;
+  const ModeSet set = solve_modes(model, so);
+  return assess_stability(diagnose(model, dopt), make_mode_report(model, set, so));
+}
+
+StellarModel generated_uniform(double gamma1, std::size_t points = 400) {
+  GeneratorOptions o;
+  o.gamma1 = gamma1;
+  o.points = points;
+  return make_uniform(o);
+}
+
+} // namespace
+
+TEST_CASE("solved: uniform sphere Gamma1 = 1.3 grows on the analytic time scale") {
+  const StellarModel model = generated_uniform(1.3);
+  const StabilityVerdict v = solved_verdict(model);
+  // Sterne 1937: omega0^2 = (3 Gamma1 - 4) G M / R^3, growth time 1/sqrt(-omega0^2).
+  const double omega2 = (3 * 1.3 - 4) * unit(model);
+  CHECK(v.newtonian == Verdict::unstable);
+  CHECK(v.fundamental_trusted);
+  CHECK(v.omega2_fundamental_s2 == doctest::Approx(omega2).epsilon(1e-3));
+  REQUIRE(v.growing.size() == 1);
+  CHECK(v.growing[0].efolding_time_s == doctest::Approx(1.0 / std::sqrt(-omega2)).epsilon(1e-3));
+  CHECK(v.notes.empty());
+}
+
+TEST_CASE("solved: Gamma1 = 4/3 everywhere is marginal (n = 0, 1.5, 3)") {
+  // Exact property (physics.md 5): Gamma1 = 4/3 => xi = const with omega0^2 = 0, any structure.
+  CHECK(solved_verdict(generated_uniform(4.0 / 3.0)).newtonian == Verdict::marginal);
+  for (double n : {1.5, 3.0}) {
+    GeneratorOptions o;
+    o.gamma1 = 4.0 / 3.0;
+    o.points = 400;
+    const StabilityVerdict v = solved_verdict(make_polytrope(n, o));
+    CHECK_MESSAGE(v.newtonian == Verdict::marginal,
+                  "n = " << n << ": sigma0^2 = " << v.sigma2_fundamental << " +- "
+                         << v.omega2_error_s2);
+    CHECK(v.post_newtonian == Verdict::unstable); // relativity tips the marginal star
+  }
+}
+
+TEST_CASE("solved: a thin Gamma1 < 4/3 layer is reported but the star stays stable") {
+  GeneratorOptions o;
+  o.points = 800;
+  StellarModel model = make_polytrope(1.5, o);
+  // Gamma1 = 1.2 in 0.80 < r/R < 0.82 (edges linear over one mesh interval).
+  for (std::size_t i = 0; i < model.size(); ++i) {
+    const double x = model.r[i] / model.radius();
+    if (x > 0.80 && x < 0.82) model.gamma1[i] = 1.2;
+  }
+  const StabilityVerdict v = solved_verdict(model);
+  REQUIRE(v.gamma1_below_4_3_zones.size() == 1);
+  CHECK(v.gamma1_below_4_3_zones[0].r_inner_cm / model.radius() == doctest::Approx(0.80).epsilon(0.01));
+  CHECK(v.gamma1_below_4_3_zones[0].r_outer_cm / model.radius() == doctest::Approx(0.82).epsilon(0.01));
+  CHECK(v.newtonian == Verdict::stable); // the verdict follows the eigenvalue
+  CHECK(v.post_newtonian == Verdict::stable);
+  CHECK(v.sigma2_fundamental > 0.0);
+  CHECK(v.sigma2_fundamental <= v.sigma2_homologous); // Rayleigh bound
+  CHECK(v.work_driving_fraction > 0.0);               // the layer does push
+}
+
+TEST_CASE("solved: very massive standard models flip post-Newtonian stability at R_crit") {
+  // Eddington standard model (generators.hpp): n = 3 with constant beta, so <Gamma1> = Gamma1(beta)
+  // (Chandrasekhar 1939) and the closed form of the threshold is
+  //   R_crit = K 2 G M / (c^2 (Gamma1(beta) - 4/3)),   K = 1.1245 (Chandrasekhar 1964, memory).
+  GeneratorOptions o;
+  o.mass_msun = 1e4;
+  o.points = 400;
+  const double g1 = gamma1_gas_radiation(eddington_beta(o.mass_msun, o.mu));
+  const double M = o.mass_msun * c::M_sun;
+  const double r_closed = 1.1245 * 2 * c::G * M / (c::c_light * c::c_light * (g1 - 4.0 / 3.0));
+  auto pn_unstable_at = [&](double radius_cm) {
+    GeneratorOptions oo = o;
+    oo.radius_rsun = radius_cm / c::R_sun;
+    return diagnose(make_standard_model(oo)).pn_unstable;
+  };
+  // Bisection in log R between a clearly unstable and a clearly stable radius.
+  double lo = 0.5 * r_closed, hi = 2.0 * r_closed;
+  REQUIRE(pn_unstable_at(lo));
+  REQUIRE_FALSE(pn_unstable_at(hi));
+  for (int it = 0; it < 40; ++it) {
+    const double mid = std::sqrt(lo * hi);
+    (pn_unstable_at(mid) ? lo : hi) = mid;
+  }
+  CHECK(lo == doctest::Approx(r_closed).epsilon(2e-4));
+
+  // On both sides the model is Newtonian-stable: only relativity makes it unstable.
+  for (double f : {0.8, 1.25}) {
+    GeneratorOptions oo = o;
+    oo.radius_rsun = f * r_closed / c::R_sun;
+    const StabilityVerdict v = solved_verdict(make_standard_model(oo));
+    CHECK(v.newtonian == Verdict::stable);
+    CHECK(v.post_newtonian == (f < 1 ? Verdict::unstable : Verdict::stable));
+    CHECK(v.unstable() == (f < 1));
+  }
 }

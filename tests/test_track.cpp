@@ -8,6 +8,7 @@
 
 #include "radmode/constants.hpp"
 #include "radmode/error.hpp"
+#include "analytic_models.hpp"
 #include "support.hpp"
 
 #include <doctest/doctest.h>
@@ -322,4 +323,81 @@ TEST_CASE("options are validated with the option named") {
   CHECK_THROWS_WITH_AS(o.validate(), doctest::Contains("--jobs"), UsageError);
   o.jobs = 0;
   CHECK(o.effective_jobs() >= 1);
+}
+
+TEST_CASE("evaluate_model on uniform spheres: sigma0^2 = 3 Gamma1 - 4, overtones, stability") {
+  // Closed form sigma_k^2 = Gamma1 (k+1)(2k+3) - 4 (Sterne 1937). Tolerance 2e-3 relative
+  // (plus 1e-3 absolute for the fundamental near zero): the solver's error on a 400-point
+  // table is of order 1e-4 in sigma^2 (its own error estimate says so).
+  TrackOptions opts;
+  opts.count = 3;
+  for (double g1 : {5.0 / 3.0, 1.40, 1.30}) {
+    const auto model = test::uniform_sphere(test::uniform_mesh(399), g1);
+    const TrackRow row = evaluate_model(model, opts);
+    INFO("Gamma1 = " << g1 << ": " << row.message);
+    CHECK(row.status == "ok");
+    REQUIRE(row.sigma2_0);
+    CHECK(*row.sigma2_0 == doctest::Approx(3 * g1 - 4).epsilon(2e-3).scale(0.5));
+    CHECK(row.gamma1_pressure_weighted.value() == doctest::Approx(g1));
+    CHECK(row.stable.value() == (g1 > 4.0 / 3.0));
+    CHECK(row.verdict_pn == (g1 > 4.0 / 3.0 ? "stable" : "unstable"));
+    REQUIRE(row.period_d.size() == 3);
+    const double tk = std::sqrt(std::pow(6.957e10, 3) / (constants::G * 1.989e33));
+    for (int k = 0; k < 3; ++k) {
+      const double s2 = g1 * (k + 1) * (2 * k + 3) - 4;
+      if (s2 <= 0) {
+        CHECK_FALSE(row.period_d[static_cast<std::size_t>(k)]);
+        continue;
+      }
+      REQUIRE(row.period_d[static_cast<std::size_t>(k)]);
+      CHECK(*row.period_d[static_cast<std::size_t>(k)] ==
+            doctest::Approx(2 * constants::pi * tk / std::sqrt(s2) / constants::day_s).epsilon(2e-3));
+    }
+    if (g1 < 4.0 / 3.0) {
+      REQUIRE(row.growth_time_s);
+      CHECK(*row.growth_time_s == doctest::Approx(tk / std::sqrt(4 - 3 * g1)).epsilon(2e-2));
+      CHECK_FALSE(row.q_d_0);
+      CHECK_FALSE(row.p1_over_p0);
+    } else {
+      // Q = 0.115836 d / sigma0 (physics.md section 2); P1/P0 = sigma0/sigma1.
+      CHECK(row.q_d_0.value() == doctest::Approx(0.115836 / std::sqrt(3 * g1 - 4)).epsilon(2e-3));
+      CHECK(row.p1_over_p0.value() ==
+            doctest::Approx(std::sqrt((3 * g1 - 4) / (10 * g1 - 4))).epsilon(2e-3));
+    }
+  }
+}
+
+TEST_CASE("run_track: a track of uniform spheres finds the onset where Gamma1 = 4/3") {
+  // Gamma1 = 1.40 - 0.02 i, age_yr = 1e5 i: sigma0^2 = 3 Gamma1 - 4 vanishes at
+  // i = (1.40 - 4/3)/0.02 = 3.3333, age 3.3333e5 yr.
+  std::vector<std::string> paths;
+  for (int i = 0; i < 8; ++i) paths.push_back(std::to_string(i));
+  const ModelLoader load = [](const std::string& p) {
+    const int i = std::stoi(p);
+    auto m = test::uniform_sphere(test::uniform_mesh(399), 1.40 - 0.02 * i);
+    m.metadata = {{"age_yr", std::to_string(i * 100000)}};
+    return m;
+  };
+  TrackOptions opts;
+  opts.count = 2;
+  opts.jobs = 2;
+  const auto run = run_track(paths, {}, load, opts);
+  REQUIRE(run.rows.size() == 8);
+  CHECK(run.failed() == 0);
+  const auto s = summarize_track(run.rows, opts.count);
+  CHECK(s.age_key == "age_yr");
+  bool found = false;
+  for (const auto& c : s.crossings)
+    if (c.quantity == "sigma2_0") {
+      found = true;
+      CHECK(c.index_before == 3);
+      CHECK(c.index_after == 4);
+      // sigma0^2 error ~1e-4 against a slope of 0.06 per step: 0.01 step tolerance.
+      CHECK(*c.at_index == doctest::Approx(10.0 / 3.0).epsilon(0.003));
+      CHECK(*c.at_age_yr == doctest::Approx(1e5 * 10.0 / 3.0).epsilon(0.003));
+    }
+  CHECK(found);
+  opts.jobs = 1;
+  CHECK(format_track_csv(table_of(run_track(paths, {}, load, opts), 2, 8)) ==
+        format_track_csv(table_of(run, 2, 8)));
 }

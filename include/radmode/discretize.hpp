@@ -96,8 +96,9 @@ struct MeshSelection {
 /// All base nodes.
 std::vector<std::size_t> all_nodes(const WeakForm& form);
 /// Every other base node, always keeping the first, the last and every node flagged in
-/// `keep` (e.g. discontinuities; empty = none): elements span two base intervals except
-/// next to a kept node.
+/// `keep` (e.g. discontinuities; empty = none): elements span two base intervals, except
+/// one single-interval element at the inner end of each stretch between kept nodes that has
+/// an odd number of intervals.
 std::vector<std::size_t> every_other_node(const WeakForm& form, const std::vector<bool>& keep = {});
 /// Same rule for a mesh of last + 1 nodes.
 std::vector<std::size_t> every_other_node(std::size_t last, const std::vector<bool>& keep = {});

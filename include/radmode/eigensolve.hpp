@@ -12,7 +12,16 @@
 // node removed ("coarse"); linear elements give O(h^2) eigenvalue error, which Richardson
 // extrapolation removes: omega2 = omega2_fine + (omega2_fine - omega2_coarse)/3. The error
 // estimate is |omega2_fine - omega2_coarse|/3 (the error of the fine value; the extrapolated
-// value is normally far more accurate), plus the solver residual.
+// value is normally far more accurate), plus interpolation_error, plus the solver residual
+// and round-off (2 residual |omega2| + 100 eps sum|x_i K_ij x_j|/x^T M x).
+//
+// Solution path (solve_modes): Spectra shift-invert Lanczos on the coarse mesh, then Rayleigh
+// quotient iteration on the fine mesh started from the prolonged coarse eigenvectors (nested
+// iteration: both meshes are needed for Richardson anyway); if the coarse mesh is too small for
+// the request, Spectra runs on the fine mesh. Every eigenvalue's index is then verified by
+// inertia; a missing index is recovered by bisection on the inertia count + inverse iteration.
+// The error estimate also contains the sensitivity to the interpolation between table points
+// (ModeSolution::interpolation_error) and a residual/round-off term.
 //
 // Units: omega2 in s^-2 (omega angular frequency, time dependence exp(i omega t)).
 #include "radmode/model.hpp"
@@ -88,7 +97,8 @@ struct ModeSet {
   std::vector<ModeSolution> modes; ///< in increasing omega2 (= increasing order)
   SolveStatus status = SolveStatus::ok;
   std::string message;             ///< details when status != ok
-  int iterations = 0;              ///< Spectra restarts used (fine mesh)
+  int iterations = 0;              ///< Spectra restarts used (on the coarse mesh when the
+                                   ///< fine one was reached by nested iteration, see above)
 };
 
 /// Solves for the modes. Throws only for invalid options; numerical trouble is a status.

@@ -18,7 +18,8 @@
 // Foreign tables: a column map (ReadOptions::columns, CLI `--columns`) names, for each
 // quantity, a column by 1-based number or header name plus a unit; `skip_lines` ignores N
 // leading lines. With a map, only the mapped columns are read (others are ignored), and when
-// every column is given by number a header line is optional (a first line of numbers is data).
+// every column is given by number a header line is optional (a first line whose mapped fields
+// are all numbers is data).
 //
 // Units (unit strings, case-sensitive): `` or `cgs` (no conversion, any quantity);
 // `cm`, `km`, `Rsun` (r only); `g`, `Msun` (m only); `Lsun` (L only); `log10` (the column holds

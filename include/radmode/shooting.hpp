@@ -23,7 +23,10 @@
 //    V2 = V/x^2 and s = sigma^2 x^3/q taken at x0. Inside the innermost table interval the
 //    structure's linear m would put an r^-2 density cusp at the centre, from which no regular
 //    solution starts; there m = m_1 (r/r_1)^3 and Vp = V (effect on omega^2: O((r_1/R)^5)).
-//    Rigid inner boundary (envelope): xi = 0, p = 1 at the innermost point.
+//    Rigid inner boundary (envelope): xi = 0, p = 1 at the innermost point; a model that
+//    reaches r = 0 gets the regular centre start even then (xi(0) = 0 is no constraint on the
+//    energy functional there: its weight vanishes like r^4, so the finite elements see the
+//    same eigenvalues).
 //  - Surface: where P_s > 0 the integration starts exactly at x = 1 with the chosen condition.
 //    Where P_s = 0, V ~ 1/(1-x) is singular; the integration starts at x = 1 - delta
 //    (delta = min(1e-7, 1e-3 x last interval)) with the regular condition
@@ -39,11 +42,12 @@
 //    0.5 max(|guess|, 1) on both sides of the guess (nearest sign change wins), then refined by
 //    Illinois regula falsi with bisection safeguard, never leaving the bracket.
 //  - Nodes: sign changes of xi along the inner and the (rescaled) outer solution, 0 < r < R.
-//  - Error estimate: the eigenvalue is computed again with a 10x looser tolerance from the
-//    converged value; the difference (which overestimates the error of the tight solve for a
-//    method whose global error scales with the tolerance) plus the final bracket width plus a
-//    floor of rel_tol max(|sigma^2|, 1). When that second solve fails the result is reported as
-//    not converged (a value without an error estimate is not trusted).
+//  - Error estimate: the eigenvalue is computed again with 10x and 100x looser tolerances from
+//    the converged value; the larger of the differences tight-10x and 10x-100x (each
+//    overestimates the error of the tight solve for a method whose global error scales with
+//    the tolerance; taking both guards against one being small by accident) plus the final
+//    bracket width plus a floor of rel_tol max(|sigma^2|, 1). When a looser solve fails the
+//    result is reported as not converged (a value without an error estimate is not trusted).
 //
 // Units: omega2 in s^-2; sigma2 dimensionless.
 #include "radmode/eigensolve.hpp"

@@ -1,6 +1,7 @@
 // radmode join: merges the tables of `radmode track --shard i/N` runs into the table a single
 // run writes (same rows, same column union and order, same settings lines).
 #include "registry.hpp"
+#include "track_output.hpp"
 
 #include "radmode/error.hpp"
 #include "radmode/output.hpp"
@@ -32,18 +33,7 @@ std::string read_file(const std::string& path) {
 int run_join(const JoinOptions& o) {
   std::vector<std::pair<std::string, TrackTable>> parts;
   for (const auto& path : o.shards) parts.emplace_back(path, parse_track_csv(read_file(path), path));
-  const TrackTable table = join_track_tables(parts);
-  const TrackSummary summary = summarize_track(table.rows, table.count);
-  write_text_file_atomic(o.output, o.json ? format_track_json(table, summary)
-                                          : format_track_csv(table));
-  if (!o.quiet) std::cerr << format_track_summary(summary);
-  if (summary.failed > 0) {
-    if (!o.quiet)
-      std::cerr << "radmode join: " << summary.failed << " of " << summary.models
-                << " models failed (see the status and message columns)\n";
-    return exit_some_failed;
-  }
-  return 0;
+  return write_track_result(join_track_tables(parts), o.output, o.json, o.quiet, "join");
 }
 
 const bool registered = register_command(
@@ -60,7 +50,7 @@ const bool registered = register_command(
                        "- = standard output")
            ->type_name("FILE");
        sub->add_flag("--json", opts->json, "Write JSON (rows and the along-track summary)");
-       sub->add_flag("-q,--quiet", opts->quiet, "No summary on standard error");
+       sub->add_flag("-q,--quiet", opts->quiet, "No summary on standard error (the count of failed models is still printed)");
        return {sub, [opts] { return run_join(*opts); }};
      }});
 

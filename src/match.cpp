@@ -58,7 +58,7 @@ std::optional<ObservedUnit> parse_observed_unit(const std::string& token) {
   if (token == "s") return ObservedUnit::second;
   if (token == "uHz" || token == "\xC2\xB5Hz" || token == "\xCE\xBCHz") // u, micro sign, mu
     return ObservedUnit::micro_hertz;
-  if (token == "c/d") return ObservedUnit::cycles_per_day;
+  if (token == "c/d" || token == "cd") return ObservedUnit::cycles_per_day;
   return std::nullopt;
 }
 

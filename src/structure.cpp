@@ -125,6 +125,14 @@ Structure::Structure(const StellarModel& model, InnerCondition inner)
     if (!monotone_cubic(iv.m.f0, iv.m.f1, iv.m.g0, iv.m.g1)) iv.m.shape = Shape::linear;
     iv.rho = shape_for(t.rho[j], t.rho[j + 1], h * t.rho[j] * dlnrho[j],
                        h * t.rho[j + 1] * dlnrho[j + 1], nullptr);
+    if (t.rho[j + 1] == 0.0 && t.rho[j] > 0.0 && j > 0 && t.r[j - 1] < t.r[j] &&
+        t.rho[j - 1] > t.rho[j]) {
+      // Density falling to zero: power law in the depth below r_{j+1}.
+      const double alpha = std::log(t.rho[j - 1] / t.rho[j]) /
+                           std::log((t.r[j + 1] - t.r[j - 1]) / (t.r[j + 1] - t.r[j]));
+      if (std::isfinite(alpha) && alpha > 0.0 && alpha <= 20.0)
+        iv.rho = {t.rho[j], 0.0, alpha, 0.0, Shape::power_to_zero};
+    }
     iv.P = shape_for(t.P[j], t.P[j + 1], h * dP[j], h * dP[j + 1], &iv);
     m_iv.push_back(iv);
     m_node_r.push_back(t.r[j + 1]);
@@ -169,6 +177,10 @@ std::pair<double, double> Structure::eval(const Curve& c, double t) {
   case Shape::log_linear: {
     const double v = std::exp(c.f0 + t * (c.f1 - c.f0));
     return {v, v * (c.f1 - c.f0)};
+  }
+  case Shape::power_to_zero: { // f0 (1 - t)^alpha, alpha in g0
+    const double v = c.f0 * std::pow(1.0 - t, c.g0);
+    return {v, t < 1.0 ? -c.g0 * v / (1.0 - t) : 0.0};
   }
   case Shape::hermite: {
     const Hermite b = hermite(t);

@@ -5,6 +5,7 @@
 #include "radmode/constants.hpp"
 #include "radmode/discretize.hpp"
 #include "radmode/error.hpp"
+#include "radmode/generators.hpp"
 
 #include <doctest/doctest.h>
 
@@ -279,4 +280,50 @@ TEST_CASE("more modes than the mesh holds: fewer_modes with a message, nothing i
   CHECK(set.status == SolveStatus::fewer_modes);
   CHECK_FALSE(set.message.empty());
   CHECK(set.modes.size() == 21);
+}
+
+TEST_CASE("generated uniform sphere (stretched mesh): Sterne's spectrum to 1e-6, k <= 9") {
+  // make_uniform's mesh is not uniform (generators.hpp): half spacing at centre and surface.
+  for (const double g1 : {1.4, 5.0 / 3.0, 2.0}) {
+    GeneratorOptions g;
+    g.gamma1 = g1;
+    const auto model = make_uniform(g); // 2,000 points by default
+    const ModeSet set = solve_count(model, 10);
+    REQUIRE(set.status == SolveStatus::ok);
+    for (int k = 0; k < 10; ++k) {
+      const auto& m = set.modes[static_cast<std::size_t>(k)];
+      const double err = std::abs(sigma2(model, m.omega2) - sterne(g1, k));
+      CHECK(err <= 1e-6 * sterne(g1, k));
+      CHECK(sigma2(model, m.error_estimate) >= err);
+      CHECK(m.order_agrees);
+      CHECK(m.trusted);
+    }
+  }
+}
+
+TEST_CASE("polytropes n = 1.5 and 3: first five modes within 1e-6 of a much finer model") {
+  // Reference: the same polytrope generated with 8x the points (16,000) and solved the same
+  // way -- a self-convergence check. The outside check of these eigenvalues (SciPy solve_ivp)
+  // is tests/reference/modes_polytrope_scipy.py of the shooting solver.
+  for (const double n : {1.5, 3.0}) {
+    GeneratorOptions g;
+    const auto model = make_polytrope(n, g);
+    g.points = 16000;
+    const auto reference = make_polytrope(n, g);
+    const ModeSet set = solve_modes(model), ref = solve_modes(reference);
+    REQUIRE(set.status == SolveStatus::ok);
+    REQUIRE(ref.status == SolveStatus::ok);
+    for (std::size_t k = 0; k < 5; ++k) {
+      const auto& m = set.modes[k];
+      const double diff = std::abs(m.omega2 - ref.modes[k].omega2);
+      MESSAGE("n = " << n << " k = " << k << ": sigma^2 = " << sigma2(model, m.omega2)
+                     << ", relative difference to the 16,000-point model " << diff / ref.modes[k].omega2
+                     << ", relative error estimate " << m.error_estimate / m.omega2);
+      CHECK(diff <= 1e-6 * ref.modes[k].omega2);
+      CHECK(diff <= m.error_estimate);
+      CHECK(m.order == static_cast<int>(k));
+      CHECK(m.order_agrees);
+      CHECK(m.trusted);
+    }
+  }
 }

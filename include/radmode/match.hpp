@@ -49,7 +49,7 @@ namespace radmode {
 /// Unit in which an observed periodicity is given.
 enum class ObservedUnit { day, hour, minute, second, micro_hertz, cycles_per_day };
 
-/// Parses a unit token ("d", "h", "min", "s", "uHz" (also "µHz"/"μHz"), "c/d"); nullopt if none.
+/// Parses a unit token ("d", "h", "min", "s", "uHz" (also "µHz"/"μHz"), "c/d" (also "cd")); nullopt if none.
 std::optional<ObservedUnit> parse_observed_unit(const std::string& token);
 /// The canonical token of a unit ("d", "uHz", ...).
 const char* unit_token(ObservedUnit unit);
@@ -172,5 +172,61 @@ struct HomologyFit {
 /// model's M and R. Numerical failure is reported in the result (ok = false), not thrown.
 HomologyFit fit_homology(const ObservationSet& observations, const std::vector<ModelPeriod>& modes,
                          double mass_g, double radius_cm, const FitOptions& options = {});
+
+// ---- one model, many models ---------------------------------------------------------------
+
+/// Settings of a match run (one per `radmode match` invocation).
+struct MatchOptions {
+  int count = 0;           ///< modes solved per model; 0 = auto_mode_count(observations); 1..200
+  bool fit_radius = false; ///< homology fit of R for every model, rank by the fitted chi^2
+  int top = 0;             ///< rows of the ranking kept (failed rows always kept); 0 = all
+  SolveOptions solve;      ///< count is overridden by `count`
+  FitOptions fit;
+  void validate() const;   ///< throws UsageError naming the option
+};
+
+/// Modes to solve when --count is not given: enough for the highest label and for every
+/// observation, plus three spare orders: max(highest label + 1, N_obs) + 3.
+int auto_mode_count(const ObservationSet& observations);
+
+/// One model's outcome.
+struct MatchRow {
+  std::size_t index = 0;     ///< position in the input list
+  std::string file;
+  std::string status = "ok"; ///< "ok", error_kind_name() of an input error, "not_converged",
+                             ///< "no_assignment", "fit_failed" or "internal"
+  std::string message;       ///< why not ok; or a note (fewer modes than asked, fit note)
+  double mass_g = 0, radius_cm = 0, rho_mean = 0; ///< the model's own (0 when not read)
+  std::vector<ModelPeriod> periods; ///< every solved mode, by order (the model's own R)
+  MatchResult match;                ///< at the model's R, or at the fitted R with fit_radius
+  std::optional<HomologyFit> fit;   ///< with fit_radius
+  bool ok() const { return status == "ok"; }
+  double chi2() const { return match.chi2; }
+};
+
+/// Solves `model` and matches (and fits, with options.fit_radius). Numerical trouble becomes
+/// the row's status; throws only for invalid options.
+MatchRow evaluate_match(const StellarModel& model, const ObservationSet& observations,
+                        const MatchOptions& options);
+
+/// Successful rows by increasing chi^2 (to 9 digits; ties by index), cut to `top`, then the failed
+/// rows in input order.
+std::vector<MatchRow> rank_rows(std::vector<MatchRow> rows, int top);
+
+/// Everything a report needs.
+struct MatchReport {
+  ObservationSet observations;
+  MatchOptions options;       ///< effective options (count resolved)
+  std::size_t models = 0;     ///< models in the run
+  std::size_t failed = 0;     ///< rows not ok
+  std::vector<MatchRow> rows; ///< as rank_rows returns them
+};
+
+/// JSON document (keys documented in docs/match.md): program, version, settings, observed,
+/// models, failed, ranking (ok rows best first, each with rank, model, chi2, periods,
+/// assignments, ratios, excluded, fit) and failures (rows not ok with status and message).
+std::string format_match_json(const MatchReport& report);
+/// Plain text for people: the ranking table, then the best model's assignment in detail.
+std::string format_match_text(const MatchReport& report);
 
 } // namespace radmode

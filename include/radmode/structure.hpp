@@ -22,6 +22,9 @@
 //      rho: cubic Hermite in log rho with d ln rho/dr from three-point differences of the
 //           table inside each segment between discontinuities;
 //      Gamma1, nabla_ad: linear.
+//    An interval whose outer row has rho = 0 (a polytrope-like surface) uses a power law of
+//    the depth, rho = rho_0 ((r_1 - r)/(r_1 - r_0))^alpha, alpha = d ln rho / d ln(r_1 - r)
+//    measured on the interval before it (0 < alpha <= 20), instead of a straight line.
 //    A cubic is used only when it is monotone between the rows (Fritsch–Carlson condition:
 //    end slopes of the secant's sign and a^2 + b^2 <= 9); otherwise, and wherever a needed
 //    derivative does not exist (a zero density), the quantity falls back to linear in log when
@@ -97,7 +100,7 @@ public:
   std::size_t right_row(std::size_t i) const { return m_iv[i].row + 1; }
 
 private:
-  enum class Shape { linear, log_linear, hermite, log_hermite };
+  enum class Shape { linear, log_linear, hermite, log_hermite, power_to_zero };
   /// One quantity on one interval: end values f0, f1 and end derivatives per unit t, g0, g1
   /// (in log space for the log shapes).
   struct Curve {

@@ -1,0 +1,132 @@
+// Benchmark of the finite-element eigen-solve (built, not run by ctest):
+//   build/tests/bench_solve [repeats]
+// For n = 3 polytropes of 2,000 / 20,000 / 200,000 points (make_polytrope):
+//  - "assemble+solve": Structure + energy form + tridiagonal pencil + solve_pencil of the 10
+//    lowest modes on the model mesh (Spectra shift-invert Lanczos, inertia-verified);
+//  - "solve_modes": the whole default solve_modes (5 modes, nested iteration, Richardson with
+//    the coarse mesh, interpolation-error estimate) and with 10 modes;
+// median wall-clock milliseconds and median thread CPU milliseconds of the repeats, and the
+// scaling exponent fitted to log(time) against log(N). Then a throughput run: two threads each
+// solving 2,000-point models (default options) for about two seconds: models per second.
+#include "radmode/discretize.hpp"
+#include "radmode/eigensolve.hpp"
+#include "radmode/generators.hpp"
+
+#include <algorithm>
+#include <atomic>
+#include <chrono>
+#include <cmath>
+#include <cstdio>
+#include <ctime>
+#include <string>
+#include <thread>
+#include <vector>
+
+using namespace radmode;
+
+namespace {
+
+double thread_cpu_seconds() {
+  timespec ts{};
+  clock_gettime(CLOCK_THREAD_CPUTIME_ID, &ts);
+  return static_cast<double>(ts.tv_sec) + 1e-9 * static_cast<double>(ts.tv_nsec);
+}
+
+double wall_seconds() {
+  return std::chrono::duration<double>(std::chrono::steady_clock::now().time_since_epoch()).count();
+}
+
+double median(std::vector<double> v) {
+  std::sort(v.begin(), v.end());
+  return v[v.size() / 2];
+}
+
+struct Timing {
+  double wall_ms, cpu_ms;
+};
+
+template <class F> Timing time_it(int repeats, F&& f) {
+  std::vector<double> wall, cpu;
+  for (int i = 0; i < repeats; ++i) {
+    const double w0 = wall_seconds(), c0 = thread_cpu_seconds();
+    f();
+    cpu.push_back(1e3 * (thread_cpu_seconds() - c0));
+    wall.push_back(1e3 * (wall_seconds() - w0));
+  }
+  return {median(wall), median(cpu)};
+}
+
+/// Least-squares slope of log(t) against log(n).
+double exponent(const std::vector<double>& n, const std::vector<double>& t) {
+  double sx = 0, sy = 0, sxx = 0, sxy = 0;
+  const double k = static_cast<double>(n.size());
+  for (std::size_t i = 0; i < n.size(); ++i) {
+    const double x = std::log(n[i]), y = std::log(t[i]);
+    sx += x;
+    sy += y;
+    sxx += x * x;
+    sxy += x * y;
+  }
+  return (k * sxy - sx * sy) / (k * sxx - sx * sx);
+}
+
+} // namespace
+
+int main(int argc, char** argv) {
+  const int repeats = argc > 1 ? std::max(1, std::stoi(argv[1])) : 21;
+  const std::vector<std::size_t> sizes = {2000, 20000, 200000};
+  std::vector<double> ns, t_solve, t_modes;
+  std::printf("%9s %22s %22s %22s\n", "points", "assemble+solve 10", "solve_modes 5", "solve_modes 10");
+  std::printf("%9s %22s %22s %22s\n", "", "wall ms / cpu ms", "wall ms / cpu ms", "wall ms / cpu ms");
+  for (const std::size_t n : sizes) {
+    GeneratorOptions g;
+    g.points = n;
+    const StellarModel model = make_polytrope(3.0, g);
+    const int reps = n >= 200000 ? std::max(3, repeats / 4) : repeats;
+    double sink = 0;
+    const Timing a = time_it(reps, [&] {
+      const Structure s(model);
+      const WeakForm f = make_stellar_form(s, SurfaceCondition::regular);
+      const TridiagonalPencil p = assemble(f, {all_nodes(f), false, false});
+      PencilRequest req;
+      req.count = 10;
+      sink += solve_pencil(p, req).pairs.back().lambda;
+    });
+    SolveOptions o5, o10;
+    o10.count = 10;
+    const Timing b = time_it(reps, [&] { sink += solve_modes(model, o5).modes.back().omega2; });
+    const Timing c = time_it(reps, [&] { sink += solve_modes(model, o10).modes.back().omega2; });
+    std::printf("%9zu %10.3f / %9.3f %10.3f / %9.3f %10.3f / %9.3f   (%g)\n", n, a.wall_ms, a.cpu_ms,
+                b.wall_ms, b.cpu_ms, c.wall_ms, c.cpu_ms, sink > 0 ? 1.0 : 0.0);
+    ns.push_back(static_cast<double>(n));
+    t_solve.push_back(a.cpu_ms);
+    t_modes.push_back(b.cpu_ms);
+  }
+  std::printf("fitted scaling exponent (cpu time ~ N^p): assemble+solve 10: p = %.2f, "
+              "solve_modes 5: p = %.2f\n",
+              exponent(ns, t_solve), exponent(ns, t_modes));
+
+  // Throughput: two threads, default options, 2,000-point models.
+  GeneratorOptions g;
+  g.points = 2000;
+  const StellarModel model = make_polytrope(3.0, g);
+  std::atomic<long> done{0};
+  std::atomic<bool> stop{false};
+  const double w0 = wall_seconds();
+  std::vector<std::thread> pool;
+  for (int t = 0; t < 2; ++t)
+    pool.emplace_back([&] {
+      while (!stop.load()) {
+        const ModeSet set = solve_modes(model);
+        if (!set.modes.empty()) ++done;
+      }
+    });
+  std::this_thread::sleep_for(std::chrono::seconds(2));
+  stop = true;
+  for (auto& th : pool) th.join();
+  const double elapsed = wall_seconds() - w0;
+  std::printf("throughput, 2 threads, 2,000 points, 5 modes + Richardson: %.0f models/s "
+              "(%ld models in %.2f s)\n",
+              static_cast<double>(done.load()) / elapsed, done.load(), elapsed);
+  return 0;
+}

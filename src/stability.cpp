@@ -221,6 +221,13 @@ StabilityVerdict assess_stability(const ModelDiagnostics& d, const ModeReport& r
       v.notes.push_back("<Gamma1> < 4/3 (sufficient for instability) but the fundamental is "
                         "stable: check the model and the solution");
   }
+  if (v.newtonian == Verdict::stable && v.post_newtonian == Verdict::unstable)
+    v.notes.push_back("stable in Newtonian gravity but unstable at first post-Newtonian order: "
+                      "general relativity decides, the Newtonian verdict alone is not enough");
+  else if (v.newtonian == Verdict::stable && pn_term > 0.0 && excess < 2.0 * pn_term)
+    v.notes.push_back("within a factor 2 of the post-Newtonian threshold (<Gamma1> - 4/3 = " +
+                      sig(excess) + ", K 2GM/(Rc^2) = " + sig(pn_term) +
+                      "): read the Newtonian verdict together with the post-Newtonian line");
   if (d.compactness > 0.1)
     v.notes.push_back("compactness " + sig(d.compactness) +
                       " is large: the first post-Newtonian criterion is unreliable");

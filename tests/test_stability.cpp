@@ -141,6 +141,10 @@ TEST_CASE("post-Newtonian verdict flips at <Gamma1> - 4/3 = K 2GM/(Rc^2)") {
     CHECK(v.post_newtonian == (f < 1 ? Verdict::unstable : Verdict::stable));
     CHECK(v.gamma1_critical_pn ==
           doctest::Approx(4.0 / 3.0 + excess / f).epsilon(1e-5)); // 4/3 + K 2GM/(R c^2)
+    // Either way the reader is told to look at the relativistic line.
+    REQUIRE(v.notes.size() == 1);
+    CHECK(v.notes[0].find(f < 1 ? "general relativity decides" : "within a factor 2") !=
+          std::string::npos);
   }
 }
 

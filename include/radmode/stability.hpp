@@ -108,8 +108,10 @@ struct StabilityVerdict {
   double pn_coefficient = 0;
   double gamma1_critical_pn = 0;
 
-  /// Consistency remarks (e.g. the fundamental above the homologous upper bound, a stable
-  /// verdict while <Gamma1> < 4/3, an untrusted fundamental). Empty when all agree.
+  /// Consistency remarks and cautions (the fundamental above the homologous upper bound, a
+  /// stable verdict while <Gamma1> < 4/3, an untrusted fundamental, Newtonian-stable but
+  /// post-Newtonian-unstable, Newtonian-stable within a factor 2 of the post-Newtonian
+  /// threshold, large compactness). Empty when all agree and nothing needs a caution.
   std::vector<std::string> notes;
 
   /// True when either verdict is unstable (what --fail-if-unstable tests).

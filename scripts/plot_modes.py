@@ -1,7 +1,7 @@
 #!/usr/bin/python3
 """Plot radial eigenfunctions written by `radmode modes MODEL --profiles FILE`.
 
-Draws, against r/R, one panel each for xi = delta r/r, delta P/P and the weight function of
+Draws, against r/R (or m/M with --against m), one panel each for xi = delta r/r, delta P/P and the weight function of
 every mode in the profiles file, and saves a PNG. Needs Debian's python3-matplotlib (run it
 with /usr/bin/python3). The file format is described in docs/modes.md.
 
@@ -40,7 +40,7 @@ def read_profiles(path):
             fields = next(csv.reader([line]))
             if header is None:
                 header = fields
-                for required in ("order", "label", "r_over_R", "xi", "dP_P", "weight"):
+                for required in ("order", "label", "r_over_R", "m_over_M", "xi", "dP_P", "weight"):
                     if required not in header:
                         raise ValueError(f"{path}:{lineno}: header lacks column '{required}'")
                 continue
@@ -69,6 +69,8 @@ def main(argv=None):
     parser.add_argument("--output", default="modes.png", help="PNG file to write")
     parser.add_argument("--title", default=None, help="figure title (default: the model)")
     parser.add_argument("--max-modes", type=int, default=6, help="plot at most this many modes")
+    parser.add_argument("--against", choices=("r", "m"), default="r",
+                        help="horizontal axis: r (r/R, default) or m (m/M)")
     args = parser.parse_args(argv)
     if args.max_modes < 1:
         parser.error("--max-modes: expected a number >= 1")
@@ -89,7 +91,7 @@ def main(argv=None):
 
     fig, axes = plt.subplots(3, 1, figsize=(7.0, 9.0), sharex=True)
     for (order, label), cols in list(modes.items())[: args.max_modes]:
-        x = cols["r_over_R"]
+        x = cols["r_over_R" if args.against == "r" else "m_over_M"]
         axes[0].plot(x, cols["xi"], label=label)
         line, = axes[1].plot(x, cols["dP_P"], label=label)
         if label in meta["surface"]:
@@ -104,7 +106,7 @@ def main(argv=None):
         axes[1].set_title(r"open circles: $-(4+\sigma^2)\,\xi(R)$ from the surface condition",
                           fontsize="small")
     axes[2].set_ylabel("weight function\n(scaled to max |w| = 1)")
-    axes[2].set_xlabel("r / R")
+    axes[2].set_xlabel("r / R" if args.against == "r" else "m / M")
     for ax in axes:
         ax.axhline(0.0, color="0.6", linewidth=0.6)
         ax.grid(True, linewidth=0.3)

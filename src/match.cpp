@@ -297,6 +297,8 @@ std::vector<ModelPeriod> model_periods(const ModeSet& modes) {
       p.why_not = "order not established" + (m.flag.empty() ? std::string() : " (" + m.flag + ")");
     else if (!(m.omega2 > 0))
       p.why_not = "omega^2 <= 0: not an oscillation (dynamically unstable or marginal)";
+    else if (!(std::abs(m.error_estimate) < m.omega2))
+      p.why_not = "omega^2 within its error estimate of 0: the sign is not established";
     else if (!m.trusted)
       p.why_not = "not trusted" + (m.flag.empty() ? std::string() : ": " + m.flag);
     else if (!std::isfinite(p.sigma_d))

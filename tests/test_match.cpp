@@ -3,6 +3,7 @@
 
 #include "radmode/constants.hpp"
 #include "radmode/error.hpp"
+#include "radmode/generators.hpp"
 #include "support.hpp"
 
 #include <doctest/doctest.h>
@@ -222,9 +223,13 @@ TEST_CASE("model periods: P = 2 pi / omega, sigma_P / P = 1/2 sigma(omega^2) / o
   d.omega2 = omega * omega * 16.0;
   d.trusted = false;
   d.flag = "order disagrees with node count";
-  set.modes = {a, b, c, d};
+  ModeSolution e = a;
+  e.order = 4;
+  e.omega2 = omega * omega * 1e-6;
+  e.error_estimate = 2.0 * e.omega2; // |omega^2| within its error: sign not established
+  set.modes = {a, b, c, d, e};
   const auto periods = model_periods(set);
-  REQUIRE(periods.size() == 4);
+  REQUIRE(periods.size() == 5);
   CHECK(periods[0].order == 0);
   CHECK(periods[0].period_d == doctest::Approx(1.0).epsilon(1e-14));
   CHECK(periods[0].sigma_d == doctest::Approx(1e-3).epsilon(1e-12));
@@ -234,6 +239,8 @@ TEST_CASE("model periods: P = 2 pi / omega, sigma_P / P = 1/2 sigma(omega^2) / o
   CHECK(contains(periods[2].why_not, "omega^2 <= 0"));
   CHECK_FALSE(periods[3].usable);
   CHECK(contains(periods[3].why_not, "order disagrees"));
+  CHECK_FALSE(periods[4].usable);
+  CHECK(contains(periods[4].why_not, "sign"));
 }
 
 // ---- mode identification -------------------------------------------------------------------
@@ -442,8 +449,6 @@ TEST_CASE("homology fit of one observation says the order is not constrained") {
 }
 
 // ---- with generated models and the solver ------------------------------------------------
-#if __has_include("radmode/generators.hpp")
-#include "radmode/generators.hpp"
 
 namespace {
 
@@ -555,4 +560,3 @@ TEST_CASE("homology: generated model at R, star at 1.1 R, the fit returns 1.1 R"
   CHECK(fit.match.assignments[0].order == 0);
   CHECK(fit.match.assignments[1].order == 1);
 }
-#endif

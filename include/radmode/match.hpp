@@ -24,7 +24,7 @@
 // is found exactly by dynamic programming over (observations by decreasing period) x
 // (orders ascending), O(N_obs * N_modes). sigma_k is the model period uncertainty from the
 // mode's eigenvalue error estimate: since P = 2 pi / omega, dP/P = 1/2 d(omega^2)/omega^2.
-// Only modes with omega^2 > 0 and a trusted solution (order established, error small) take
+// Only modes with omega^2 > 0 (beyond its error estimate) and a trusted solution take
 // part; the others are listed in the result as excluded, with the reason.
 //
 // Homology fit (fit_homology): at fixed mass and structure every period scales as
@@ -102,7 +102,7 @@ struct ModelPeriod {
   int order = -1;
   double period_d = 0; ///< 2 pi / omega [d]; 0 when not oscillatory
   double sigma_d = 0;  ///< from the eigenvalue error estimate [d]
-  bool usable = false; ///< omega^2 > 0 and the mode is trusted
+  bool usable = false; ///< omega^2 > 0 beyond its error estimate and the mode is trusted
   std::string why_not; ///< reason when !usable
 };
 

@@ -77,6 +77,13 @@ head -1 "$tmp/csv" | grep -q '^order,label,nodes,omega2_s2,sigma2,period_s' ||
 grep -q '^order,label,r_over_R,m_over_M,xi,dP_P,drho_rho' "$tmp/prof.csv" || fail "profiles header"
 grep -q '^1,1O,1,1,1,' "$tmp/prof.csv" || fail "profiles: 1O does not end with r/R = 1, xi = 1"
 
+# The plotting script reads it (only where Debian's matplotlib is installed).
+if /usr/bin/python3 -c 'import matplotlib' 2>/dev/null; then
+  /usr/bin/python3 "$2/scripts/plot_modes.py" "$tmp/prof.csv" --output "$tmp/modes.png" \
+    2>"$tmp/err" || fail "plot_modes.py exited $?: $(cat "$tmp/err")"
+  [ "$(head -c 4 "$tmp/modes.png" | tail -c 3)" = "PNG" ] || fail "plot_modes.py wrote no PNG"
+fi
+
 # --- window -----------------------------------------------------------------------------
 f1=$(/usr/bin/python3 -c 'import json,sys; d=json.load(open(sys.argv[1])); print(d["modes"][1]["frequency_uHz"])' "$tmp/json")
 lo=$(/usr/bin/python3 -c "print($f1*0.99)"); hi=$(/usr/bin/python3 -c "print($f1*1.01)")

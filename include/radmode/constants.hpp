@@ -16,6 +16,6 @@ inline constexpr double day_s = 86400.0;            ///< s
 inline constexpr double hour_s = 3600.0;            ///< s
 inline constexpr double atomic_mass_unit_g = 1.66053906660e-24; ///< g (CODATA 2018)
 inline constexpr double boltzmann_k = 1.380649e-16; ///< erg K^-1 (exact)
-inline constexpr double radiation_a = 7.565723e-15; ///< erg cm^-3 K^-4 (CODATA 2018, 4 sigma / c)
+inline constexpr double radiation_a = 7.5657332503e-15; ///< erg cm^-3 K^-4 (4 sigma / c, CODATA 2018 sigma)
 
 } // namespace radmode::constants

@@ -10,10 +10,13 @@
 //     theta = 1 - x^2/6 + n x^4/120 - n(8n-5) x^6/15120 + O(x^8)   at x0 = 0.01.
 // Near the surface (once theta < 0.5) the independent variable becomes theta itself:
 //     dx/dtheta = 1/theta',  dtheta'/dtheta = -2/x - theta^n / theta',
-// integrated down to theta = 0 exactly, so x1 and theta'(x1) come out of an ODE solve
-// instead of a root search (theta' < 0 there for every n < 5, so the change is regular).
+// integrated down to theta = 0 exactly (controlled Dormand–Prince 5(4), tolerance 1e-14),
+// so x1 and theta'(x1) come out of an ODE solve instead of a root search (theta' < 0 there for every n < 5, so the change is regular).
 // theta^n is evaluated as max(theta, 0)^n, which is safe for non-integer n and equals 1 for
 // n = 0 (theta never goes below 0 on the integrated range; the clamp only guards round-off).
+// (The theta-form uses Dormand–Prince, not Fehlberg 7(8): near theta = 0 it is
+// quadrature-like with the non-smooth term theta^n, where the Fehlberg pair's error estimate
+// fails; for n = 0.5 it gave theta'(x1) wrong by 6e-8 relative, caught by the SciPy check.)
 //
 // Model quantities (derived from the Lane–Emden solution, exact relations):
 //     rho_c / rho_bar = -x1 / (3 theta'(x1)),

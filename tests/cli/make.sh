@@ -77,4 +77,17 @@ rc=$?
 [ "$rc" = 3 ] || die "unwritable output: expected exit 3, got $rc"
 grep -q "no/such/dir/u.txt" "$tmp/stderr" || die "unwritable output: path not named"
 
+# the shipped demo model is exactly what its recorded command produces today
+demo="$2/models/polytrope_n3.txt"
+if [ -f "$demo" ]; then
+  cmd=$(sed -n 's/^# command = radmode //p' "$demo" | sed 's/ --output .*//')
+  # shellcheck disable=SC2086
+  "$bin" $cmd --output "$tmp/demo.txt" || die "demo command failed"
+  diff <(grep -vE '^# (command|radmode_version) ' "$demo") \
+       <(grep -vE '^# (command|radmode_version) ' "$tmp/demo.txt") > /dev/null \
+    || die "models/polytrope_n3.txt differs from what its recorded command writes"
+else
+  die "models/polytrope_n3.txt missing"
+fi
+
 exit $fail

@@ -43,6 +43,14 @@
 
 namespace radmode {
 
+/// Cautions that go with every stability verdict (shown in `--help` of inspect and modes).
+inline constexpr const char* stability_cautions =
+    "Cautions: the analysis is adiabatic, so the verdict concerns dynamical stability "
+    "(collapse or expansion on the dynamical time), not pulsational (non-adiabatic) "
+    "stability. A Newtonian-stable verdict near the relativistic threshold (<Gamma1> close "
+    "to 4/3) must be read together with the post-Newtonian line.";
+
+
 enum class Verdict { stable, unstable, marginal, undetermined };
 
 /// "stable", "unstable", "marginal", "undetermined".

@@ -113,6 +113,7 @@ const bool registered = register_command(
                       "post-Newtonian threshold and the verdict from the fundamental mode");
        sub->add_option("model", opts->model, "Model table")->required()->type_name("MODEL");
        add_model_input_options(sub, opts->input);
+       sub->footer(stability_cautions);
        sub->add_flag("--json", opts->json, "Write JSON instead of text");
        sub->add_option("-o,--output", opts->output,
                        "Write the report here (temporary name, renamed when complete); "

@@ -469,6 +469,7 @@ const bool registered = register_command(
            "modes", "Radial modes of a model: periods, frequencies, Q, growth rates, period "
                     "ratios, stability verdict; optionally eigenfunction profiles");
        sub->add_option("MODEL", opts->model_path, "Model table file")->required();
+       sub->footer(stability_cautions);
        CLI::Option* count =
            sub->add_option("--count", opts->count, "Number of lowest modes (default 5)")
                ->type_name("K");

@@ -113,4 +113,11 @@ for bad in "--hse-warn -1" "--pn-energy foo" "--marginal 2"; do
   [ -e "$tmp/never.json" ] && die "$bad: left an output file"
 done
 
+# --- the cautions that go with every verdict are in the help of inspect and modes ----------
+for cmd in inspect modes; do
+  "$bin" "$cmd" --help > "$tmp/help.txt" 2>&1 || die "$cmd --help exit $?"
+  grep -qF 'not pulsational (non-adiabatic)' "$tmp/help.txt" || die "$cmd --help lacks the adiabatic caution"
+  grep -qF 'post-Newtonian line' "$tmp/help.txt" || die "$cmd --help lacks the relativistic caution"
+done
+
 exit $fail

@@ -117,12 +117,7 @@ const char* const line_syntax = "expected 'value unit uncertainty [label]'";
 
 Location field_location(const std::string& source, std::size_t line, std::size_t field,
                         const char* name) {
-  Location loc;
-  loc.file = source;
-  loc.line = line;
-  loc.column = field;
-  loc.column_name = name;
-  return loc;
+  return Location{source, line, field, name};
 }
 
 double parse_field(const std::string& token, const std::string& source, std::size_t line,

@@ -193,12 +193,7 @@ public:
 
 private:
   Location at(std::size_t line, std::size_t column = 0, const std::string& name = {}) const {
-    Location loc;
-    loc.file = m_source;
-    loc.line = line;
-    loc.column = column;
-    loc.column_name = name;
-    return loc;
+    return Location{m_source, line, column, name};
   }
   bool next_line(std::string_view& line);
   void set_up_native(std::string_view header);

@@ -3,6 +3,7 @@
 #include "radmode/constants.hpp"
 #include "radmode/error.hpp"
 
+#include <algorithm>
 #include <array>
 #include <cmath>
 #include <string>
@@ -58,11 +59,9 @@ GaussRule gauss_rule(int points) {
   return g;
 }
 
-} // namespace
-
-WeakForm sample_form(std::vector<double> x,
-                     const std::function<FormCoefficients(std::size_t, double, double)>& coefficients,
-                     int points_per_interval) {
+/// Checks the arguments of a sampler and lays out the quadrature points: x, the rule, t and w
+/// filled; a, b, c, d sized (to be filled by the caller).
+WeakForm quadrature_layout(std::vector<double> x, int points_per_interval) {
   if (points_per_interval < 1 || points_per_interval > 5)
     throw UsageError("quadrature points per interval: expected 1..5, got " +
                      std::to_string(points_per_interval));
@@ -81,11 +80,24 @@ WeakForm sample_form(std::vector<double> x,
   for (std::size_t i = 0; i < f.interval_count(); ++i) {
     const double h = f.x[i + 1] - f.x[i];
     for (std::size_t k = 0; k < q; ++k) {
-      const std::size_t j = i * q + k;
-      const double t = g.t[k];
-      const FormCoefficients c = coefficients(i, t, f.x[i] + t * h);
-      f.t[j] = t;
-      f.w[j] = g.w[k] * h;
+      f.t[i * q + k] = g.t[k];
+      f.w[i * q + k] = g.w[k] * h;
+    }
+  }
+  return f;
+}
+
+} // namespace
+
+WeakForm sample_form(std::vector<double> x,
+                     const std::function<FormCoefficients(std::size_t, double, double)>& coefficients,
+                     int points_per_interval) {
+  WeakForm f = quadrature_layout(std::move(x), points_per_interval);
+  const auto q = static_cast<std::size_t>(points_per_interval);
+  for (std::size_t i = 0; i < f.interval_count(); ++i) {
+    const double h = f.x[i + 1] - f.x[i];
+    for (std::size_t j = i * q; j < (i + 1) * q; ++j) {
+      const FormCoefficients c = coefficients(i, f.t[j], f.x[i] + f.t[j] * h);
       f.a[j] = c.a;
       f.b[j] = c.b;
       f.c[j] = c.c;
@@ -105,29 +117,39 @@ WeakForm make_stellar_form(const Structure& s, SurfaceCondition surface,
   const double R = s.radius(), M = s.mass();
   const double P_unit = constants::G * M * M / (R * R * R * R);
   const double rho_unit = M / (R * R * R);
-  std::vector<double> x(s.node_r().size());
-  for (std::size_t i = 0; i < x.size(); ++i) x[i] = s.node_r()[i] / R;
-  x.back() = 1.0;
+  const std::vector<double>& node_r = s.node_r();
+  std::vector<double> x(node_r.size(), 1.0); // the surface exactly at x = 1
+  for (std::size_t i = 0; i + 1 < x.size(); ++i) x[i] = node_r[i] / R;
+  WeakForm f = quadrature_layout(std::move(x), default_quadrature_points);
+  const auto q = static_cast<std::size_t>(default_quadrature_points);
+  // Every base interval lies inside one interval of `coefficients_from` (same radii, a subset
+  // of the nodes): found once per base interval by its midpoint, marching outward.
+  const std::vector<double>* from_r = coefficients_from ? &coefficients_from->node_r() : nullptr;
   std::size_t hint = 0;
-  WeakForm f = sample_form(
-      std::move(x),
-      [&](std::size_t interval, double t, double xq) {
-        const StructurePoint p =
-            coefficients_from
-                ? coefficients_from->at_radius(
-                      s.node_r()[interval] + t * (s.node_r()[interval + 1] - s.node_r()[interval]),
-                      &hint)
-                : s.at(interval, t);
-        const double P = p.P / P_unit, rho = p.rho / rho_unit, m = p.m / M;
-        const double gp = p.gamma1 * P, x2 = xq * xq;
-        FormCoefficients c;
-        c.a = gp * x2 * x2;
-        c.b = 3.0 * gp * x2 * xq;
-        c.c = 9.0 * gp * x2 - 4.0 * m * rho * xq;
-        c.d = rho * x2 * x2;
-        return c;
-      },
-      default_quadrature_points);
+  for (std::size_t i = 0; i < f.interval_count(); ++i) {
+    const double xi = f.x[i], hx = f.x[i + 1] - xi;
+    const double r0 = node_r[i], hr = node_r[i + 1] - r0;
+    std::size_t k = 0;
+    double k0 = 0, kh = 1;
+    if (from_r) {
+      k = coefficients_from->interval_of(r0 + 0.5 * hr, &hint);
+      k0 = (*from_r)[k];
+      kh = (*from_r)[k + 1] - k0;
+    }
+    for (std::size_t j = i * q; j < (i + 1) * q; ++j) {
+      const double t = f.t[j];
+      const StructureValues p =
+          from_r ? coefficients_from->values_at(k, std::clamp((r0 + t * hr - k0) / kh, 0.0, 1.0))
+                 : s.values_at(i, t);
+      const double xq = xi + t * hx;
+      const double P = p.P / P_unit, rho = p.rho / rho_unit, m = p.m / M;
+      const double gp = p.gamma1 * P, x2 = xq * xq;
+      f.a[j] = gp * x2 * x2;
+      f.b[j] = 3.0 * gp * x2 * xq;
+      f.c[j] = 9.0 * gp * x2 - 4.0 * m * rho * xq;
+      f.d[j] = rho * x2 * x2;
+    }
+  }
   if (surface == SurfaceCondition::regular) {
     const double Ps = s.surface_pressure() / P_unit;
     f.k_last = -4.0 * Ps;
@@ -173,6 +195,7 @@ std::optional<Structure> every_other_row(const Structure& s) {
   for (const std::size_t k : keep_nodes) keep_node[k] = true;
   // Rows map to nodes in order: a repeated radius gives two rows on one node.
   std::vector<std::size_t> rows;
+  rows.reserve(keep_nodes.size() + 16);
   std::size_t node = 0;
   for (std::size_t j = 0; j < t.size(); ++j) {
     if (j > 0 && t.r[j] != t.r[j - 1]) ++node;
@@ -182,8 +205,8 @@ std::optional<Structure> every_other_row(const Structure& s) {
   StellarModel c;
   auto pick = [&](const std::vector<double>& from, std::vector<double>& to) {
     if (from.empty()) return;
-    to.reserve(rows.size());
-    for (const std::size_t j : rows) to.push_back(from[j]);
+    to.resize(rows.size());
+    for (std::size_t k = 0; k < rows.size(); ++k) to[k] = from[rows[k]];
   };
   pick(t.r, c.r);
   pick(t.m, c.m);
@@ -192,7 +215,10 @@ std::optional<Structure> every_other_row(const Structure& s) {
   pick(t.gamma1, c.gamma1);
   pick(t.nabla_ad, c.nabla_ad);
   c.source = t.source;
-  return Structure(c, s.inner());
+  // A subset of a prepared (valid) table keeping its first row, its surface and both rows of
+  // every discontinuity is valid and starts at the same inner radius: prepared directly,
+  // without validating or extending it again.
+  return Structure(std::move(c), s.inner(), Structure::Prepared{});
 }
 
 TridiagonalPencil assemble(const WeakForm& f, const MeshSelection& mesh) {
@@ -205,45 +231,59 @@ TridiagonalPencil assemble(const WeakForm& f, const MeshSelection& mesh) {
     if (nodes[e] <= nodes[e - 1])
       throw UsageError("finite-element mesh: selected nodes must increase strictly");
   const std::size_t nn = nodes.size();
-  std::vector<double> kd(nn, 0.0), ko(nn - 1, 0.0), md(nn, 0.0), mo(nn - 1, 0.0);
-  const auto q = static_cast<std::size_t>(f.points_per_interval);
-  for (std::size_t e = 0; e + 1 < nn; ++e) {
-    const double xl = f.x[nodes[e]], xr = f.x[nodes[e + 1]];
-    const double h = xr - xl, inv_h = 1.0 / h, inv_h2 = inv_h * inv_h;
-    double kll = 0, krr = 0, klr = 0, mll = 0, mrr = 0, mlr = 0;
-    for (std::size_t j = nodes[e] * q; j < nodes[e + 1] * q; ++j) {
-      const std::size_t i = j / q;
-      const double xq = f.x[i] + f.t[j] * (f.x[i + 1] - f.x[i]);
-      const double pl = (xr - xq) * inv_h, pr = 1.0 - pl;
-      const double w = f.w[j], a = f.a[j] * inv_h2, b = f.b[j] * inv_h, c = f.c[j], d = f.d[j];
-      kll += w * (a - 2.0 * b * pl + c * pl * pl);
-      krr += w * (a + 2.0 * b * pr + c * pr * pr);
-      klr += w * (-a + b * (pl - pr) + c * pl * pr);
-      mll += w * d * pl * pl;
-      mrr += w * d * pr * pr;
-      mlr += w * d * pl * pr;
-    }
-    kd[e] += kll;
-    kd[e + 1] += krr;
-    ko[e] += klr;
-    md[e] += mll;
-    md[e + 1] += mrr;
-    mo[e] += mlr;
-  }
-  kd.front() += f.k_first;
-  md.front() += f.m_first;
-  kd.back() += f.k_last;
-  md.back() += f.m_last;
-
   const std::size_t lo = mesh.fix_first ? 1 : 0;
   const std::size_t hi = mesh.fix_last ? nn - 1 : nn; // one past the last unknown
   if (hi <= lo + 1) throw UsageError("finite-element mesh: fewer than 2 unknowns remain");
+  // Element e couples mesh nodes e and e + 1, i.e. unknowns e - lo and e + 1 - lo; entries of
+  // removed (fixed) nodes are computed and dropped.
   TridiagonalPencil p;
-  p.k_diag.assign(kd.begin() + static_cast<std::ptrdiff_t>(lo), kd.begin() + static_cast<std::ptrdiff_t>(hi));
-  p.m_diag.assign(md.begin() + static_cast<std::ptrdiff_t>(lo), md.begin() + static_cast<std::ptrdiff_t>(hi));
-  p.k_off.assign(ko.begin() + static_cast<std::ptrdiff_t>(lo), ko.begin() + static_cast<std::ptrdiff_t>(hi - 1));
-  p.m_off.assign(mo.begin() + static_cast<std::ptrdiff_t>(lo), mo.begin() + static_cast<std::ptrdiff_t>(hi - 1));
-  p.node.assign(nodes.begin() + static_cast<std::ptrdiff_t>(lo), nodes.begin() + static_cast<std::ptrdiff_t>(hi));
+  p.k_diag.assign(hi - lo, 0.0);
+  p.m_diag.assign(hi - lo, 0.0);
+  p.k_off.assign(hi - lo - 1, 0.0);
+  p.m_off.assign(hi - lo - 1, 0.0);
+  p.node.assign(nodes.begin() + static_cast<std::ptrdiff_t>(lo),
+                nodes.begin() + static_cast<std::ptrdiff_t>(hi));
+  const auto q = static_cast<std::size_t>(f.points_per_interval);
+  const double* x = f.x.data();
+  for (std::size_t e = 0; e + 1 < nn; ++e) {
+    const double xl = x[nodes[e]], xr = x[nodes[e + 1]];
+    const double h = xr - xl, inv_h = 1.0 / h, inv_h2 = inv_h * inv_h;
+    double kll = 0, krr = 0, klr = 0, mll = 0, mrr = 0, mlr = 0;
+    for (std::size_t i = nodes[e]; i < nodes[e + 1]; ++i) {
+      const double x0 = x[i], hx = x[i + 1] - x0;
+      for (std::size_t j = i * q; j < (i + 1) * q; ++j) {
+        const double xq = x0 + f.t[j] * hx;
+        const double pl = (xr - xq) * inv_h, pr = 1.0 - pl;
+        const double w = f.w[j], a = f.a[j] * inv_h2, b = f.b[j] * inv_h, c = f.c[j], d = f.d[j];
+        kll += w * (a - 2.0 * b * pl + c * pl * pl);
+        krr += w * (a + 2.0 * b * pr + c * pr * pr);
+        klr += w * (-a + b * (pl - pr) + c * pl * pr);
+        mll += w * d * pl * pl;
+        mrr += w * d * pr * pr;
+        mlr += w * d * pl * pr;
+      }
+    }
+    if (e >= lo && e < hi) {
+      p.k_diag[e - lo] += kll;
+      p.m_diag[e - lo] += mll;
+    }
+    if (e + 1 >= lo && e + 1 < hi) {
+      p.k_diag[e + 1 - lo] += krr;
+      p.m_diag[e + 1 - lo] += mrr;
+    }
+    if (e >= lo && e + 1 < hi) {
+      p.k_off[e - lo] += klr;
+      p.m_off[e - lo] += mlr;
+    }
+  }
+  if (lo == 0) {
+    p.k_diag.front() += f.k_first;
+    p.m_diag.front() += f.m_first;
+  }
+  if (hi == nn) {
+    p.k_diag.back() += f.k_last;
+    p.m_diag.back() += f.m_last;
+  }
   return p;
 }
 

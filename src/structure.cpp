@@ -5,6 +5,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <limits>
 #include <sstream>
 
 namespace radmode {
@@ -13,17 +14,6 @@ namespace {
 
 void prepend(std::vector<double>& v, double x) {
   if (!v.empty()) v.insert(v.begin(), x);
-}
-
-// Cubic Hermite basis on t in [0, 1].
-struct Hermite {
-  double h00, h10, h01, h11;   // values
-  double d00, d10, d01, d11;   // d/dt
-};
-Hermite hermite(double t) {
-  const double t2 = t * t, t3 = t2 * t;
-  return {2 * t3 - 3 * t2 + 1, t3 - 2 * t2 + t, -2 * t3 + 3 * t2, t3 - t2,
-          6 * t2 - 6 * t,      3 * t2 - 4 * t + 1, -6 * t2 + 6 * t, 3 * t2 - 2 * t};
 }
 
 /// Fritsch–Carlson: the cubic with end values f0, f1 and end derivatives (per unit t) g0, g1
@@ -37,8 +27,8 @@ bool monotone_cubic(double f0, double f1, double g0, double g1) {
 
 /// d f/dr at row j from its neighbours inside rows [lo, hi] (three-point, second order,
 /// one-sided at the ends; the secant when the segment has two rows).
-double fd_slope(const std::vector<double>& r, const std::vector<double>& f, std::size_t j,
-                std::size_t lo, std::size_t hi) {
+double fd_slope(const double* r, const double* f, std::size_t j, std::size_t lo,
+                std::size_t hi) {
   if (hi - lo == 1) return (f[hi] - f[lo]) / (r[hi] - r[lo]);
   std::size_t a = j - 1, b = j, c = j + 1; // centred stencil by default
   if (j == lo) a = lo, b = lo + 1, c = lo + 2;
@@ -74,103 +64,132 @@ Structure::Structure(const StellarModel& model, InnerCondition inner)
     if (!t.line.empty()) t.line.insert(t.line.begin(), std::size_t{0});
     m_extended = true;
   }
+  prepare();
+}
+
+Structure::Structure(StellarModel&& table, InnerCondition inner, Prepared)
+    : m_table(std::move(table)), m_inner(inner) {
+  prepare();
+}
+
+void Structure::prepare() {
+  const StellarModel& t = m_table;
   m_has_nabla_ad = !t.nabla_ad.empty();
   m_mass = t.m.back();
   m_surface_P = t.P.back();
 
   const std::size_t n = t.r.size();
+  const double *r = t.r.data(), *m = t.m.data(), *P = t.P.data(), *rho = t.rho.data();
+  const double* gamma1 = t.gamma1.data();
   using constants::G;
   using constants::pi;
-  // Derivatives at every row from the model's own equations: dm/dr = 4 pi r^2 rho and
-  // hydrostatic equilibrium dP/dr = -G m rho / r^2 (0 at r = 0); d ln rho / dr by finite
+  // Per row, computed once (each row serves two intervals): derivatives from the model's own
+  // equations, dm/dr = 4 pi r^2 rho and hydrostatic equilibrium dP/dr = -G m rho / r^2 (0 at
+  // r = 0); ln rho and ln P where positive (0 elsewhere, unused there); d ln rho / dr by finite
   // differences inside each segment between discontinuities (NaN where rho has a zero).
-  std::vector<double> dm(n), dP(n), dlnrho(n, std::nan(""));
+  std::vector<double> work(5 * n);
+  double* dm = work.data();
+  double* dP = dm + n;
+  double* lnrho = dP + n;
+  double* lnP = lnrho + n;
+  double* dlnrho = lnP + n;
   for (std::size_t j = 0; j < n; ++j) {
-    dm[j] = 4 * pi * t.r[j] * t.r[j] * t.rho[j];
-    dP[j] = t.r[j] > 0 ? -G * t.m[j] * t.rho[j] / (t.r[j] * t.r[j]) : 0.0;
+    dm[j] = 4 * pi * r[j] * r[j] * rho[j];
+    dP[j] = r[j] > 0 ? -G * m[j] * rho[j] / (r[j] * r[j]) : 0.0;
+    lnrho[j] = rho[j] > 0 ? std::log(rho[j]) : 0.0;
+    lnP[j] = P[j] > 0 ? std::log(P[j]) : 0.0;
+    dlnrho[j] = std::numeric_limits<double>::quiet_NaN();
   }
   {
-    std::vector<double> lnrho(n, 0.0);
-    for (std::size_t j = 0; j < n; ++j) lnrho[j] = t.rho[j] > 0 ? std::log(t.rho[j]) : 0.0;
     // Runs of rows with rho > 0 and no repeated radius inside.
     std::size_t lo = 0;
     for (std::size_t j = 1; j <= n; ++j) {
-      if (j < n && t.r[j] != t.r[j - 1] && t.rho[j] > 0 && t.rho[j - 1] > 0) continue;
+      if (j < n && r[j] != r[j - 1] && rho[j] > 0 && rho[j - 1] > 0) continue;
       const std::size_t hi = j - 1; // run [lo, hi]
-      if (hi > lo && t.rho[lo] > 0)
-        for (std::size_t k = lo; k <= hi; ++k) dlnrho[k] = fd_slope(t.r, lnrho, k, lo, hi);
+      if (hi > lo && rho[lo] > 0)
+        for (std::size_t k = lo; k <= hi; ++k) dlnrho[k] = fd_slope(r, lnrho, k, lo, hi);
       lo = j;
     }
   }
 
+  m_iv.clear();
+  m_node_r.clear();
+  m_discontinuity.clear();
   m_iv.reserve(n - 1);
   m_node_r.reserve(n);
-  m_node_r.push_back(t.r.front());
+  m_discontinuity.reserve(n);
+  m_node_r.push_back(r[0]);
   m_discontinuity.push_back(false);
   for (std::size_t j = 0; j + 1 < n; ++j) {
-    if (t.r[j + 1] == t.r[j]) { // repeated radius: no interval, the node is a discontinuity
+    if (r[j + 1] == r[j]) { // repeated radius: no interval, the node is a discontinuity
       m_discontinuity.back() = true;
       continue;
     }
     Interval iv{};
     iv.row = j;
-    iv.r0 = t.r[j];
-    iv.r1 = t.r[j + 1];
+    iv.r0 = r[j];
+    iv.r1 = r[j + 1];
     const double h = iv.r1 - iv.r0;
-    iv.g0 = t.gamma1[j];
-    iv.g1 = t.gamma1[j + 1];
+    iv.g0 = gamma1[j];
+    iv.g1 = gamma1[j + 1];
     iv.na0 = m_has_nabla_ad ? t.nabla_ad[j] : 0.0;
     iv.na1 = m_has_nabla_ad ? t.nabla_ad[j + 1] : 0.0;
-    iv.m = {t.m[j], t.m[j + 1], h * dm[j], h * dm[j + 1], Shape::hermite};
+    iv.m = {m[j], m[j + 1], h * dm[j], h * dm[j + 1], Shape::hermite};
     if (!monotone_cubic(iv.m.f0, iv.m.f1, iv.m.g0, iv.m.g1)) iv.m.shape = Shape::linear;
-    iv.rho = shape_for(t.rho[j], t.rho[j + 1], h * t.rho[j] * dlnrho[j],
-                       h * t.rho[j + 1] * dlnrho[j + 1], nullptr);
-    if (t.rho[j + 1] == 0.0 && t.rho[j] > 0.0 && j > 0 && t.r[j - 1] < t.r[j] &&
-        t.rho[j - 1] > t.rho[j]) {
+    iv.rho = shape_for(rho[j], rho[j + 1], lnrho[j], lnrho[j + 1], h * rho[j] * dlnrho[j],
+                       h * rho[j + 1] * dlnrho[j + 1], nullptr);
+    if (rho[j + 1] == 0.0 && rho[j] > 0.0 && j > 0 && r[j - 1] < r[j] && rho[j - 1] > rho[j]) {
       // Density falling to zero: power law in the depth below r_{j+1}.
-      const double alpha = std::log(t.rho[j - 1] / t.rho[j]) /
-                           std::log((t.r[j + 1] - t.r[j - 1]) / (t.r[j + 1] - t.r[j]));
+      const double alpha = std::log(rho[j - 1] / rho[j]) /
+                           std::log((r[j + 1] - r[j - 1]) / (r[j + 1] - r[j]));
       if (std::isfinite(alpha) && alpha > 0.0 && alpha <= 20.0)
-        iv.rho = {t.rho[j], 0.0, alpha, 0.0, Shape::power_to_zero};
+        iv.rho = {rho[j], 0.0, alpha, 0.0, Shape::power_to_zero};
     }
-    iv.P = shape_for(t.P[j], t.P[j + 1], h * dP[j], h * dP[j + 1], &iv);
+    iv.P = shape_for(P[j], P[j + 1], lnP[j], lnP[j + 1], h * dP[j], h * dP[j + 1], &iv);
     m_iv.push_back(iv);
-    m_node_r.push_back(t.r[j + 1]);
+    m_node_r.push_back(r[j + 1]);
     m_discontinuity.push_back(false);
   }
 }
 
-Structure::Curve Structure::shape_for(double f0, double f1, double g0, double g1,
-                                      const Interval* hse) const {
+inline Structure::Basis Structure::basis(double t) {
+  const double t2 = t * t, t3 = t2 * t;
+  return {2 * t3 - 3 * t2 + 1, t3 - 2 * t2 + t, -2 * t3 + 3 * t2, t3 - t2,
+          6 * t2 - 6 * t,      3 * t2 - 4 * t + 1, -6 * t2 + 6 * t, 3 * t2 - 2 * t};
+}
+
+Structure::Curve Structure::shape_for(double f0, double f1, double lf0, double lf1, double g0,
+                                      double g1, const Interval* hse) {
   // Candidates: cubic Hermite in log (both ends > 0) and in linear space, each only when its
   // end derivatives are finite and keep it monotone; else the fallback rule (linear in log
   // when both ends are > 0, otherwise linear).
   const bool positive = f0 > 0 && f1 > 0;
-  Curve lin{f0, f1, g0, g1, Shape::hermite};
-  Curve log{0, 0, 0, 0, Shape::log_hermite};
+  const Curve lin{f0, f1, g0, g1, Shape::hermite};
+  Curve lg{0, 0, 0, 0, Shape::log_hermite};
   const bool lin_ok = std::isfinite(g0) && std::isfinite(g1) && monotone_cubic(f0, f1, g0, g1);
   bool log_ok = false;
   if (positive) {
-    log = {std::log(f0), std::log(f1), g0 / f0, g1 / f1, Shape::log_hermite};
-    log_ok = std::isfinite(log.g0) && std::isfinite(log.g1) &&
-             monotone_cubic(log.f0, log.f1, log.g0, log.g1);
+    lg = {lf0, lf1, g0 / f0, g1 / f1, Shape::log_hermite};
+    log_ok = std::isfinite(lg.g0) && std::isfinite(lg.g1) &&
+             monotone_cubic(lg.f0, lg.f1, lg.g0, lg.g1);
   }
   if (lin_ok && log_ok && hse) {
     // Both usable (pressure): take the one closer to hydrostatic equilibrium at the midpoint.
+    static const Basis mid = basis(0.5);
     const double rm = 0.5 * (hse->r0 + hse->r1), h = hse->r1 - hse->r0;
-    const double m = eval(hse->m, 0.5).first, rho = eval(hse->rho, 0.5).first;
+    const double m = value(hse->m, 0.5, mid), rho = value(hse->rho, 0.5, mid);
     const double target = rm > 0 ? -constants::G * m * rho / (rm * rm) : 0.0;
-    const double res_lin = std::abs(eval(lin, 0.5).second / h - target);
-    const double res_log = std::abs(eval(log, 0.5).second / h - target);
-    return res_log <= res_lin ? log : lin;
+    const double res_lin = std::abs(eval(lin, 0.5, mid).second / h - target);
+    const double res_log = std::abs(eval(lg, 0.5, mid).second / h - target);
+    return res_log <= res_lin ? lg : lin;
   }
-  if (log_ok) return log;
+  if (log_ok) return lg;
   if (lin_ok) return lin;
-  if (positive) return {std::log(f0), std::log(f1), 0, 0, Shape::log_linear};
+  if (positive) return {lf0, lf1, 0, 0, Shape::log_linear};
   return {f0, f1, 0, 0, Shape::linear};
 }
 
-std::pair<double, double> Structure::eval(const Curve& c, double t) {
+inline std::pair<double, double> Structure::eval(const Curve& c, double t, const Basis& b) {
   switch (c.shape) {
   case Shape::linear:
     return {c.f0 + t * (c.f1 - c.f0), c.f1 - c.f0};
@@ -182,17 +201,31 @@ std::pair<double, double> Structure::eval(const Curve& c, double t) {
     const double v = c.f0 * std::pow(1.0 - t, c.g0);
     return {v, t < 1.0 ? -c.g0 * v / (1.0 - t) : 0.0};
   }
-  case Shape::hermite: {
-    const Hermite b = hermite(t);
+  case Shape::hermite:
     return {b.h00 * c.f0 + b.h10 * c.g0 + b.h01 * c.f1 + b.h11 * c.g1,
             b.d00 * c.f0 + b.d10 * c.g0 + b.d01 * c.f1 + b.d11 * c.g1};
-  }
   case Shape::log_hermite:
   default: {
-    const Hermite b = hermite(t);
     const double v = std::exp(b.h00 * c.f0 + b.h10 * c.g0 + b.h01 * c.f1 + b.h11 * c.g1);
     return {v, v * (b.d00 * c.f0 + b.d10 * c.g0 + b.d01 * c.f1 + b.d11 * c.g1)};
   }
+  }
+}
+
+inline double Structure::value(const Curve& c, double t, const Basis& b) {
+  // The first member of eval(c, t, b), with the same arithmetic.
+  switch (c.shape) {
+  case Shape::linear:
+    return c.f0 + t * (c.f1 - c.f0);
+  case Shape::log_linear:
+    return std::exp(c.f0 + t * (c.f1 - c.f0));
+  case Shape::power_to_zero:
+    return c.f0 * std::pow(1.0 - t, c.g0);
+  case Shape::hermite:
+    return b.h00 * c.f0 + b.h10 * c.g0 + b.h01 * c.f1 + b.h11 * c.g1;
+  case Shape::log_hermite:
+  default:
+    return std::exp(b.h00 * c.f0 + b.h10 * c.g0 + b.h01 * c.f1 + b.h11 * c.g1);
   }
 }
 
@@ -202,7 +235,8 @@ StructurePoint Structure::at(std::size_t interval, double t) const {
   StructurePoint p;
   // Endpoints exactly reproduce the table rows (no exp(log()) round-off there).
   const double h = iv.r1 - iv.r0;
-  const auto m = eval(iv.m, t), P = eval(iv.P, t), rho = eval(iv.rho, t);
+  const Basis b = basis(t);
+  const auto m = eval(iv.m, t, b), P = eval(iv.P, t, b), rho = eval(iv.rho, t, b);
   p.dm_dr = m.second / h;
   p.dP_dr = P.second / h;
   p.drho_dr = rho.second / h;
@@ -224,6 +258,17 @@ StructurePoint Structure::at(std::size_t interval, double t) const {
   p.gamma1 = s * iv.g0 + t * iv.g1;
   p.nabla_ad = s * iv.na0 + t * iv.na1;
   return p;
+}
+
+StructureValues Structure::values_at(std::size_t interval, double t) const {
+  const Interval& iv = m_iv[interval];
+  if (t == 0.0 || t == 1.0) {
+    const std::size_t row = t == 1.0 ? iv.row + 1 : iv.row;
+    return {m_table.m[row], m_table.P[row], m_table.rho[row], m_table.gamma1[row]};
+  }
+  const Basis b = basis(t);
+  return {value(iv.m, t, b), value(iv.P, t, b), value(iv.rho, t, b),
+          (1.0 - t) * iv.g0 + t * iv.g1};
 }
 
 std::size_t Structure::interval_of(double r, std::size_t* hint) const {

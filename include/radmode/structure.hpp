@@ -40,6 +40,7 @@
 #include "radmode/model.hpp"
 
 #include <cstddef>
+#include <optional>
 #include <utility>
 #include <vector>
 
@@ -59,6 +60,12 @@ struct StructurePoint {
   double dP_dr = 0, dm_dr = 0, drho_dr = 0;
 };
 
+/// The values of a StructurePoint without r, nabla_ad and the derivatives: what the energy
+/// form needs at a quadrature point (Structure::values_at). Units as in StructurePoint.
+struct StructureValues {
+  double m = 0, P = 0, rho = 0, gamma1 = 0;
+};
+
 class Structure {
 public:
   /// Prepares `model` (validated first with validate_model: throws InputError when invalid).
@@ -75,6 +82,10 @@ public:
   /// Quantities inside interval i at local coordinate t in [0, 1] (r = r_i + t (r_{i+1} - r_i)).
   /// t = 0 and t = 1 reproduce that interval's own table rows exactly.
   StructurePoint at(std::size_t interval, double t) const;
+
+  /// m, P, rho and Gamma1 of at(interval, t), bit for bit, without computing r, nabla_ad and
+  /// the derivatives: the cheap evaluation used to sample the energy form.
+  StructureValues values_at(std::size_t interval, double t) const;
 
   /// Interval containing radius r: r_i <= r < r_{i+1}; the last interval also contains R.
   /// A radius at a discontinuity belongs to the OUTER interval. `hint` (optional, in/out) is a
@@ -100,6 +111,15 @@ public:
   std::size_t right_row(std::size_t i) const { return m_iv[i].row + 1; }
 
 private:
+  friend std::optional<Structure> every_other_row(const Structure& structure);
+  struct Prepared {};
+  /// Prepares a table that is already valid and needs no centre extension (every_other_row:
+  /// a subset of the rows of a prepared table, both rows of each discontinuity kept).
+  Structure(StellarModel&& table, InnerCondition inner, Prepared);
+  /// Builds the intervals from m_table (the part of the preparation after the centre
+  /// extension).
+  void prepare();
+
   enum class Shape { linear, log_linear, hermite, log_hermite, power_to_zero };
   /// One quantity on one interval: end values f0, f1 and end derivatives per unit t, g0, g1
   /// (in log space for the log shapes).
@@ -112,11 +132,20 @@ private:
     double r0, r1, g0, g1, na0, na1;
     Curve m, P, rho;
   };
-  /// Interpolant for one quantity (see the file comment); `hse` (pressure only) lets it pick
-  /// between the log and linear cubic by the hydrostatic residual at the midpoint.
-  Curve shape_for(double f0, double f1, double g0, double g1, const Interval* hse) const;
-  /// Value and derivative with respect to t.
-  static std::pair<double, double> eval(const Curve& c, double t);
+  /// Cubic Hermite basis at one t: values h00, h10, h01, h11 and their t-derivatives.
+  struct Basis {
+    double h00, h10, h01, h11, d00, d10, d01, d11;
+  };
+  static Basis basis(double t);
+  /// Interpolant for one quantity (see the file comment). f0, f1 > 0 comes with their logs
+  /// (lf0, lf1; unused otherwise). `hse` (pressure only) lets it pick between the log and
+  /// linear cubic by the hydrostatic residual at the midpoint.
+  static Curve shape_for(double f0, double f1, double lf0, double lf1, double g0, double g1,
+                         const Interval* hse);
+  /// Value and derivative with respect to t (b = basis(t), used by the Hermite shapes).
+  static std::pair<double, double> eval(const Curve& c, double t, const Basis& b);
+  /// Value only.
+  static double value(const Curve& c, double t, const Basis& b);
 
   StellarModel m_table;
   std::vector<Interval> m_iv;

@@ -117,6 +117,7 @@ WeakForm make_stellar_form(const Structure& s, SurfaceCondition surface,
   const double R = s.radius(), M = s.mass();
   const double P_unit = constants::G * M * M / (R * R * R * R);
   const double rho_unit = M / (R * R * R);
+  const double inv_P_unit = 1.0 / P_unit, inv_rho_unit = 1.0 / rho_unit, inv_M = 1.0 / M;
   const std::vector<double>& node_r = s.node_r();
   std::vector<double> x(node_r.size(), 1.0); // the surface exactly at x = 1
   for (std::size_t i = 0; i + 1 < x.size(); ++i) x[i] = node_r[i] / R;
@@ -142,7 +143,7 @@ WeakForm make_stellar_form(const Structure& s, SurfaceCondition surface,
           from_r ? coefficients_from->values_at(k, std::clamp((r0 + t * hr - k0) / kh, 0.0, 1.0))
                  : s.values_at(i, t);
       const double xq = xi + t * hx;
-      const double P = p.P / P_unit, rho = p.rho / rho_unit, m = p.m / M;
+      const double P = p.P * inv_P_unit, rho = p.rho * inv_rho_unit, m = p.m * inv_M;
       const double gp = p.gamma1 * P, x2 = xq * xq;
       f.a[j] = gp * x2 * x2;
       f.b[j] = 3.0 * gp * x2 * xq;

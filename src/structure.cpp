@@ -17,12 +17,12 @@ void prepend(std::vector<double>& v, double x) {
 }
 
 /// Fritsch–Carlson: the cubic with end values f0, f1 and end derivatives (per unit t) g0, g1
-/// is monotone when both derivatives share the secant's sign and a^2 + b^2 <= 9.
+/// is monotone when both derivatives share the secant's sign and a^2 + b^2 <= 9, with
+/// a = g0 / (f1 - f0), b = g1 / (f1 - f0) (tested here without dividing).
 bool monotone_cubic(double f0, double f1, double g0, double g1) {
   const double delta = f1 - f0;
   if (delta == 0.0) return g0 == 0.0 && g1 == 0.0;
-  const double a = g0 / delta, b = g1 / delta;
-  return a >= 0 && b >= 0 && a * a + b * b <= 9.0;
+  return g0 * delta >= 0 && g1 * delta >= 0 && g0 * g0 + g1 * g1 <= 9.0 * (delta * delta);
 }
 
 /// d f/dr at row j from its neighbours inside rows [lo, hi] (three-point, second order,
@@ -30,9 +30,15 @@ bool monotone_cubic(double f0, double f1, double g0, double g1) {
 double fd_slope(const double* r, const double* f, std::size_t j, std::size_t lo,
                 std::size_t hi) {
   if (hi - lo == 1) return (f[hi] - f[lo]) / (r[hi] - r[lo]);
-  std::size_t a = j - 1, b = j, c = j + 1; // centred stencil by default
-  if (j == lo) a = lo, b = lo + 1, c = lo + 2;
-  else if (j == hi) a = hi - 2, b = hi - 1, c = hi;
+  if (j > lo && j < hi) {
+    // Centred: the derivative at r_j of the parabola through rows j-1, j, j+1, i.e. the
+    // secants weighted by the opposite spacing, (h2 s1 + h1 s2) / (h1 + h2), in one division.
+    const double h1 = r[j] - r[j - 1], h2 = r[j + 1] - r[j];
+    const double d1 = f[j] - f[j - 1], d2 = f[j + 1] - f[j];
+    return (h2 * h2 * d1 + h1 * h1 * d2) / (h1 * h2 * (h1 + h2));
+  }
+  std::size_t a = lo, b = lo + 1, c = lo + 2;
+  if (j == hi) a = hi - 2, b = hi - 1, c = hi;
   // Derivative at r[j] of the parabola through (a, b, c).
   const double x = r[j], xa = r[a], xb = r[b], xc = r[c];
   const double la = ((x - xb) + (x - xc)) / ((xa - xb) * (xa - xc));
@@ -87,17 +93,19 @@ void Structure::prepare() {
   // equations, dm/dr = 4 pi r^2 rho and hydrostatic equilibrium dP/dr = -G m rho / r^2 (0 at
   // r = 0); ln rho and ln P where positive (0 elsewhere, unused there); d ln rho / dr by finite
   // differences inside each segment between discontinuities (NaN where rho has a zero).
-  std::vector<double> work(5 * n);
+  std::vector<double> work(6 * n);
   double* dm = work.data();
   double* dP = dm + n;
   double* lnrho = dP + n;
   double* lnP = lnrho + n;
-  double* dlnrho = lnP + n;
+  double* dlnP = lnP + n; // d ln P / dr where P > 0
+  double* dlnrho = dlnP + n;
   for (std::size_t j = 0; j < n; ++j) {
     dm[j] = 4 * pi * r[j] * r[j] * rho[j];
     dP[j] = r[j] > 0 ? -G * m[j] * rho[j] / (r[j] * r[j]) : 0.0;
     lnrho[j] = rho[j] > 0 ? std::log(rho[j]) : 0.0;
     lnP[j] = P[j] > 0 ? std::log(P[j]) : 0.0;
+    dlnP[j] = P[j] > 0 ? dP[j] / P[j] : 0.0;
     dlnrho[j] = std::numeric_limits<double>::quiet_NaN();
   }
   {
@@ -136,8 +144,8 @@ void Structure::prepare() {
     iv.na1 = m_has_nabla_ad ? t.nabla_ad[j + 1] : 0.0;
     iv.m = {m[j], m[j + 1], h * dm[j], h * dm[j + 1], Shape::hermite};
     if (!monotone_cubic(iv.m.f0, iv.m.f1, iv.m.g0, iv.m.g1)) iv.m.shape = Shape::linear;
-    iv.rho = shape_for(rho[j], rho[j + 1], lnrho[j], lnrho[j + 1], h * rho[j] * dlnrho[j],
-                       h * rho[j + 1] * dlnrho[j + 1], nullptr);
+    iv.rho = shape_for(rho[j], rho[j + 1], h * rho[j] * dlnrho[j], h * rho[j + 1] * dlnrho[j + 1],
+                       lnrho[j], lnrho[j + 1], h * dlnrho[j], h * dlnrho[j + 1], nullptr);
     if (rho[j + 1] == 0.0 && rho[j] > 0.0 && j > 0 && r[j - 1] < r[j] && rho[j - 1] > rho[j]) {
       // Density falling to zero: power law in the depth below r_{j+1}.
       const double alpha = std::log(rho[j - 1] / rho[j]) /
@@ -145,7 +153,8 @@ void Structure::prepare() {
       if (std::isfinite(alpha) && alpha > 0.0 && alpha <= 20.0)
         iv.rho = {rho[j], 0.0, alpha, 0.0, Shape::power_to_zero};
     }
-    iv.P = shape_for(P[j], P[j + 1], lnP[j], lnP[j + 1], h * dP[j], h * dP[j + 1], &iv);
+    iv.P = shape_for(P[j], P[j + 1], h * dP[j], h * dP[j + 1], lnP[j], lnP[j + 1], h * dlnP[j],
+                     h * dlnP[j + 1], &iv);
     m_iv.push_back(iv);
     m_node_r.push_back(r[j + 1]);
     m_discontinuity.push_back(false);
@@ -158,8 +167,8 @@ inline Structure::Basis Structure::basis(double t) {
           6 * t2 - 6 * t,      3 * t2 - 4 * t + 1, -6 * t2 + 6 * t, 3 * t2 - 2 * t};
 }
 
-Structure::Curve Structure::shape_for(double f0, double f1, double lf0, double lf1, double g0,
-                                      double g1, const Interval* hse) {
+Structure::Curve Structure::shape_for(double f0, double f1, double g0, double g1, double lf0,
+                                      double lf1, double lg0, double lg1, const Interval* hse) {
   // Candidates: cubic Hermite in log (both ends > 0) and in linear space, each only when its
   // end derivatives are finite and keep it monotone; else the fallback rule (linear in log
   // when both ends are > 0, otherwise linear).
@@ -169,18 +178,19 @@ Structure::Curve Structure::shape_for(double f0, double f1, double lf0, double l
   const bool lin_ok = std::isfinite(g0) && std::isfinite(g1) && monotone_cubic(f0, f1, g0, g1);
   bool log_ok = false;
   if (positive) {
-    lg = {lf0, lf1, g0 / f0, g1 / f1, Shape::log_hermite};
+    lg = {lf0, lf1, lg0, lg1, Shape::log_hermite};
     log_ok = std::isfinite(lg.g0) && std::isfinite(lg.g1) &&
              monotone_cubic(lg.f0, lg.f1, lg.g0, lg.g1);
   }
   if (lin_ok && log_ok && hse) {
     // Both usable (pressure): take the one closer to hydrostatic equilibrium at the midpoint.
     static const Basis mid = basis(0.5);
+    // Compared per unit t (both sides times the interval length): no division needed.
     const double rm = 0.5 * (hse->r0 + hse->r1), h = hse->r1 - hse->r0;
     const double m = value(hse->m, 0.5, mid), rho = value(hse->rho, 0.5, mid);
-    const double target = rm > 0 ? -constants::G * m * rho / (rm * rm) : 0.0;
-    const double res_lin = std::abs(eval(lin, 0.5, mid).second / h - target);
-    const double res_log = std::abs(eval(lg, 0.5, mid).second / h - target);
+    const double target = rm > 0 ? -constants::G * m * rho * h / (rm * rm) : 0.0;
+    const double res_lin = std::abs(eval(lin, 0.5, mid).second - target);
+    const double res_log = std::abs(eval(lg, 0.5, mid).second - target);
     return res_log <= res_lin ? lg : lin;
   }
   if (log_ok) return lg;

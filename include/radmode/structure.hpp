@@ -137,11 +137,12 @@ private:
     double h00, h10, h01, h11, d00, d10, d01, d11;
   };
   static Basis basis(double t);
-  /// Interpolant for one quantity (see the file comment). f0, f1 > 0 comes with their logs
-  /// (lf0, lf1; unused otherwise). `hse` (pressure only) lets it pick between the log and
-  /// linear cubic by the hydrostatic residual at the midpoint.
-  static Curve shape_for(double f0, double f1, double lf0, double lf1, double g0, double g1,
-                         const Interval* hse);
+  /// Interpolant for one quantity (see the file comment) from its end values f0, f1 and end
+  /// derivatives per unit t g0, g1, and when f0, f1 > 0 (unused otherwise) the same of its
+  /// log: lf0, lf1, lg0, lg1. `hse` (pressure only) lets it pick between the log and linear
+  /// cubic by the hydrostatic residual at the midpoint.
+  static Curve shape_for(double f0, double f1, double g0, double g1, double lf0, double lf1,
+                         double lg0, double lg1, const Interval* hse);
   /// Value and derivative with respect to t (b = basis(t), used by the Hermite shapes).
   static std::pair<double, double> eval(const Curve& c, double t, const Basis& b);
   /// Value only.

@@ -131,16 +131,16 @@ WeakForm make_stellar_form(const Structure& s, SurfaceCondition surface,
     const double xi = f.x[i], hx = f.x[i + 1] - xi;
     const double r0 = node_r[i], hr = node_r[i + 1] - r0;
     std::size_t k = 0;
-    double k0 = 0, kh = 1;
+    double k0 = 0, inv_kh = 1;
     if (from_r) {
       k = coefficients_from->interval_of(r0 + 0.5 * hr, &hint);
       k0 = (*from_r)[k];
-      kh = (*from_r)[k + 1] - k0;
+      inv_kh = 1.0 / ((*from_r)[k + 1] - k0);
     }
     for (std::size_t j = i * q; j < (i + 1) * q; ++j) {
       const double t = f.t[j];
       const StructureValues p =
-          from_r ? coefficients_from->values_at(k, std::clamp((r0 + t * hr - k0) / kh, 0.0, 1.0))
+          from_r ? coefficients_from->values_at(k, std::clamp((r0 + t * hr - k0) * inv_kh, 0.0, 1.0))
                  : s.values_at(i, t);
       const double xq = xi + t * hx;
       const double P = p.P * inv_P_unit, rho = p.rho * inv_rho_unit, m = p.m * inv_M;
@@ -222,6 +222,56 @@ std::optional<Structure> every_other_row(const Structure& s) {
   return Structure(std::move(c), s.inner(), Structure::Prepared{});
 }
 
+namespace {
+
+/// Element integrals of the hat functions (left l, right r) on every element of `nodes`,
+/// added into the pencil `p` whose unknowns are mesh nodes lo .. hi - 1; Q points per base
+/// interval (a compile-time count, so the point loop unrolls).
+template <std::size_t Q>
+void add_elements(const WeakForm& f, const std::vector<std::size_t>& nodes, std::size_t lo,
+                  std::size_t hi, TridiagonalPencil& p) {
+  const double* x = f.x.data();
+  const double *ft = f.t.data(), *fw = f.w.data(), *fa = f.a.data(), *fb = f.b.data(),
+               *fc = f.c.data(), *fd = f.d.data();
+  double *kd = p.k_diag.data(), *md = p.m_diag.data(), *ko = p.k_off.data(), *mo = p.m_off.data();
+  const std::size_t nn = nodes.size();
+  for (std::size_t e = 0; e + 1 < nn; ++e) {
+    const double xl = x[nodes[e]], xr = x[nodes[e + 1]];
+    const double h = xr - xl, inv_h = 1.0 / h, inv_h2 = inv_h * inv_h;
+    double kll = 0, krr = 0, klr = 0, mll = 0, mrr = 0, mlr = 0;
+    for (std::size_t i = nodes[e]; i < nodes[e + 1]; ++i) {
+      const double x0 = x[i], hx = x[i + 1] - x0;
+      for (std::size_t j = i * Q; j < i * Q + Q; ++j) {
+        const double xq = x0 + ft[j] * hx;
+        const double pl = (xr - xq) * inv_h, pr = 1.0 - pl;
+        const double w = fw[j], a = fa[j] * inv_h2, b = fb[j] * inv_h, c = fc[j], d = fd[j];
+        kll += w * (a - 2.0 * b * pl + c * pl * pl);
+        krr += w * (a + 2.0 * b * pr + c * pr * pr);
+        klr += w * (-a + b * (pl - pr) + c * pl * pr);
+        mll += w * d * pl * pl;
+        mrr += w * d * pr * pr;
+        mlr += w * d * pl * pr;
+      }
+    }
+    // Element e couples mesh nodes e and e + 1, i.e. unknowns e - lo and e + 1 - lo; entries
+    // of removed (fixed) nodes are dropped.
+    if (e >= lo && e < hi) {
+      kd[e - lo] += kll;
+      md[e - lo] += mll;
+    }
+    if (e + 1 >= lo && e + 1 < hi) {
+      kd[e + 1 - lo] += krr;
+      md[e + 1 - lo] += mrr;
+    }
+    if (e >= lo && e + 1 < hi) {
+      ko[e - lo] += klr;
+      mo[e - lo] += mlr;
+    }
+  }
+}
+
+} // namespace
+
 TridiagonalPencil assemble(const WeakForm& f, const MeshSelection& mesh) {
   const auto& nodes = mesh.nodes;
   const std::size_t last = f.interval_count();
@@ -235,8 +285,6 @@ TridiagonalPencil assemble(const WeakForm& f, const MeshSelection& mesh) {
   const std::size_t lo = mesh.fix_first ? 1 : 0;
   const std::size_t hi = mesh.fix_last ? nn - 1 : nn; // one past the last unknown
   if (hi <= lo + 1) throw UsageError("finite-element mesh: fewer than 2 unknowns remain");
-  // Element e couples mesh nodes e and e + 1, i.e. unknowns e - lo and e + 1 - lo; entries of
-  // removed (fixed) nodes are computed and dropped.
   TridiagonalPencil p;
   p.k_diag.assign(hi - lo, 0.0);
   p.m_diag.assign(hi - lo, 0.0);
@@ -244,38 +292,15 @@ TridiagonalPencil assemble(const WeakForm& f, const MeshSelection& mesh) {
   p.m_off.assign(hi - lo - 1, 0.0);
   p.node.assign(nodes.begin() + static_cast<std::ptrdiff_t>(lo),
                 nodes.begin() + static_cast<std::ptrdiff_t>(hi));
-  const auto q = static_cast<std::size_t>(f.points_per_interval);
-  const double* x = f.x.data();
-  for (std::size_t e = 0; e + 1 < nn; ++e) {
-    const double xl = x[nodes[e]], xr = x[nodes[e + 1]];
-    const double h = xr - xl, inv_h = 1.0 / h, inv_h2 = inv_h * inv_h;
-    double kll = 0, krr = 0, klr = 0, mll = 0, mrr = 0, mlr = 0;
-    for (std::size_t i = nodes[e]; i < nodes[e + 1]; ++i) {
-      const double x0 = x[i], hx = x[i + 1] - x0;
-      for (std::size_t j = i * q; j < (i + 1) * q; ++j) {
-        const double xq = x0 + f.t[j] * hx;
-        const double pl = (xr - xq) * inv_h, pr = 1.0 - pl;
-        const double w = f.w[j], a = f.a[j] * inv_h2, b = f.b[j] * inv_h, c = f.c[j], d = f.d[j];
-        kll += w * (a - 2.0 * b * pl + c * pl * pl);
-        krr += w * (a + 2.0 * b * pr + c * pr * pr);
-        klr += w * (-a + b * (pl - pr) + c * pl * pr);
-        mll += w * d * pl * pl;
-        mrr += w * d * pr * pr;
-        mlr += w * d * pl * pr;
-      }
-    }
-    if (e >= lo && e < hi) {
-      p.k_diag[e - lo] += kll;
-      p.m_diag[e - lo] += mll;
-    }
-    if (e + 1 >= lo && e + 1 < hi) {
-      p.k_diag[e + 1 - lo] += krr;
-      p.m_diag[e + 1 - lo] += mrr;
-    }
-    if (e >= lo && e + 1 < hi) {
-      p.k_off[e - lo] += klr;
-      p.m_off[e - lo] += mlr;
-    }
+  switch (f.points_per_interval) {
+  case 1: add_elements<1>(f, nodes, lo, hi, p); break;
+  case 2: add_elements<2>(f, nodes, lo, hi, p); break;
+  case 3: add_elements<3>(f, nodes, lo, hi, p); break;
+  case 4: add_elements<4>(f, nodes, lo, hi, p); break;
+  case 5: add_elements<5>(f, nodes, lo, hi, p); break;
+  default:
+    throw UsageError("quadrature points per interval: expected 1..5, got " +
+                     std::to_string(f.points_per_interval));
   }
   if (lo == 0) {
     p.k_diag.front() += f.k_first;

@@ -161,30 +161,21 @@ void Structure::prepare() {
   }
 }
 
-inline Structure::Basis Structure::basis(double t) {
-  const double t2 = t * t, t3 = t2 * t;
-  return {2 * t3 - 3 * t2 + 1, t3 - 2 * t2 + t, -2 * t3 + 3 * t2, t3 - t2,
-          6 * t2 - 6 * t,      3 * t2 - 4 * t + 1, -6 * t2 + 6 * t, 3 * t2 - 2 * t};
-}
-
 Structure::Curve Structure::shape_for(double f0, double f1, double g0, double g1, double lf0,
                                       double lf1, double lg0, double lg1, const Interval* hse) {
   // Candidates: cubic Hermite in log (both ends > 0) and in linear space, each only when its
   // end derivatives are finite and keep it monotone; else the fallback rule (linear in log
   // when both ends are > 0, otherwise linear).
   const bool positive = f0 > 0 && f1 > 0;
+  const Curve lg{lf0, lf1, lg0, lg1, Shape::log_hermite};
+  const bool log_ok = positive && std::isfinite(lg0) && std::isfinite(lg1) &&
+                      monotone_cubic(lf0, lf1, lg0, lg1);
+  if (log_ok && !hse) return lg; // no choice to make: the log cubic wins
   const Curve lin{f0, f1, g0, g1, Shape::hermite};
-  Curve lg{0, 0, 0, 0, Shape::log_hermite};
   const bool lin_ok = std::isfinite(g0) && std::isfinite(g1) && monotone_cubic(f0, f1, g0, g1);
-  bool log_ok = false;
-  if (positive) {
-    lg = {lf0, lf1, lg0, lg1, Shape::log_hermite};
-    log_ok = std::isfinite(lg.g0) && std::isfinite(lg.g1) &&
-             monotone_cubic(lg.f0, lg.f1, lg.g0, lg.g1);
-  }
-  if (lin_ok && log_ok && hse) {
+  if (lin_ok && log_ok) {
     // Both usable (pressure): take the one closer to hydrostatic equilibrium at the midpoint.
-    static const Basis mid = basis(0.5);
+    const Basis mid = basis(0.5); // constant-folded
     // Compared per unit t (both sides times the interval length): no division needed.
     const double rm = 0.5 * (hse->r0 + hse->r1), h = hse->r1 - hse->r0;
     const double m = value(hse->m, 0.5, mid), rho = value(hse->rho, 0.5, mid);
@@ -222,23 +213,6 @@ inline std::pair<double, double> Structure::eval(const Curve& c, double t, const
   }
 }
 
-inline double Structure::value(const Curve& c, double t, const Basis& b) {
-  // The first member of eval(c, t, b), with the same arithmetic.
-  switch (c.shape) {
-  case Shape::linear:
-    return c.f0 + t * (c.f1 - c.f0);
-  case Shape::log_linear:
-    return std::exp(c.f0 + t * (c.f1 - c.f0));
-  case Shape::power_to_zero:
-    return c.f0 * std::pow(1.0 - t, c.g0);
-  case Shape::hermite:
-    return b.h00 * c.f0 + b.h10 * c.g0 + b.h01 * c.f1 + b.h11 * c.g1;
-  case Shape::log_hermite:
-  default:
-    return std::exp(b.h00 * c.f0 + b.h10 * c.g0 + b.h01 * c.f1 + b.h11 * c.g1);
-  }
-}
-
 StructurePoint Structure::at(std::size_t interval, double t) const {
   const Interval& iv = m_iv[interval];
   const StellarModel& tb = m_table;
@@ -268,17 +242,6 @@ StructurePoint Structure::at(std::size_t interval, double t) const {
   p.gamma1 = s * iv.g0 + t * iv.g1;
   p.nabla_ad = s * iv.na0 + t * iv.na1;
   return p;
-}
-
-StructureValues Structure::values_at(std::size_t interval, double t) const {
-  const Interval& iv = m_iv[interval];
-  if (t == 0.0 || t == 1.0) {
-    const std::size_t row = t == 1.0 ? iv.row + 1 : iv.row;
-    return {m_table.m[row], m_table.P[row], m_table.rho[row], m_table.gamma1[row]};
-  }
-  const Basis b = basis(t);
-  return {value(iv.m, t, b), value(iv.P, t, b), value(iv.rho, t, b),
-          (1.0 - t) * iv.g0 + t * iv.g1};
 }
 
 std::size_t Structure::interval_of(double r, std::size_t* hint) const {

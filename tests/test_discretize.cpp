@@ -3,11 +3,14 @@
 #include "radmode/discretize.hpp"
 
 #include "analytic_models.hpp"
+#include "radmode/constants.hpp"
 #include "radmode/error.hpp"
+#include "radmode/generators.hpp"
 
 #include <Eigen/Dense>
 #include <doctest/doctest.h>
 
+#include <algorithm>
 #include <cmath>
 
 using namespace radmode;
@@ -91,6 +94,125 @@ TEST_CASE("a coarse element spanning two base intervals sees the same coefficien
   CHECK(p.k_diag[0] == doctest::Approx(2.0));
   CHECK(p.k_off[0] == doctest::Approx(-2.0));
   CHECK(p.m_diag[0] == doctest::Approx(1.0 / 3.0));
+}
+
+TEST_CASE("stellar form of the uniform sphere: the analytic coefficients at the Gauss points") {
+  // Uniform-density sphere (physics.md §6): in units of M, R and G M^2/R^4, m = x^3,
+  // rho = 3/(4 pi), P = (3/(8 pi)) (1 - x^2); the energy form (discretize.hpp) then has
+  // a = Gamma1 P x^4, b = 3 Gamma1 P x^3, c = 9 Gamma1 P x^2 - 4 m rho x, d = rho x^4. The
+  // cubic interpolation is exact for this model, so the sampled form must match to round-off.
+  const double gamma1 = 5.0 / 3.0, pi = 3.14159265358979323846;
+  const auto model = test::uniform_sphere(test::uniform_mesh(40, 0.05), gamma1);
+  const Structure s(model); // centre extension included
+  const WeakForm f = make_stellar_form(s, SurfaceCondition::regular);
+  REQUIRE(f.a.size() == 3 * f.interval_count());
+  double worst = 0;
+  for (std::size_t j = 0; j < f.a.size(); ++j) {
+    const std::size_t i = j / 3;
+    const double x = f.x[i] + f.t[j] * (f.x[i + 1] - f.x[i]);
+    const double P = 3.0 / (8.0 * pi) * (1 - x * x), rho = 3.0 / (4.0 * pi), m = x * x * x;
+    const double a = gamma1 * P * std::pow(x, 4), b = 3 * gamma1 * P * std::pow(x, 3);
+    const double c = 9 * gamma1 * P * x * x - 4 * m * rho * x, d = rho * std::pow(x, 4);
+    const double scale = gamma1 * 3.0 / (8.0 * pi); // largest size of the coefficients
+    for (const double e : {f.a[j] - a, f.b[j] - b, f.c[j] - c, f.d[j] - d})
+      worst = std::max(worst, std::abs(e) / scale);
+  }
+  CHECK(worst < 1e-12);
+  // Regular surface: P_s = 0 here, so no surface terms.
+  CHECK(f.k_last == 0.0);
+  CHECK(f.m_last == 0.0);
+}
+
+TEST_CASE("form from another structure: its coefficients at the same radii") {
+  // The documented meaning of make_stellar_form(s, surface, &other): the coefficients come
+  // from other.at_radius(r) at the quadrature radii of s. Checked on an n = 3 polytrope
+  // with every other row as `other` (the interpolation-error estimate's use).
+  GeneratorOptions g;
+  g.points = 300;
+  const Structure s(make_polytrope(3.0, g));
+  const auto half = every_other_row(s);
+  REQUIRE(half.has_value());
+  const WeakForm f = make_stellar_form(s, SurfaceCondition::regular, &*half);
+  const double R = s.radius(), M = s.mass();
+  const double P_unit = constants::G * M * M / (R * R * R * R), rho_unit = M / (R * R * R);
+  for (std::size_t j = 0; j < f.a.size(); ++j) {
+    const std::size_t i = j / 3;
+    const double r = s.node_r()[i] + f.t[j] * (s.node_r()[i + 1] - s.node_r()[i]);
+    const StructurePoint p = half->at_radius(r);
+    const double x = f.x[i] + f.t[j] * (f.x[i + 1] - f.x[i]);
+    const double a = p.gamma1 * p.P / P_unit * std::pow(x, 4), d = p.rho / rho_unit * std::pow(x, 4);
+    CHECK(f.a[j] == doctest::Approx(a).epsilon(1e-13));
+    CHECK(f.d[j] == doctest::Approx(d).epsilon(1e-13));
+  }
+}
+
+TEST_CASE("every_other_row equals the structure of the same rows prepared from scratch") {
+  // every_other_row prepares its subset directly (no second validation); the result must be
+  // the one the public constructor gives for the same table. Model with a discontinuity.
+  GeneratorOptions g;
+  g.points = 101;
+  StellarModel m = make_polytrope(1.5, g);
+  const std::size_t k = 40; // repeat row k with a denser outer side: a discontinuity
+  for (auto* v : {&m.r, &m.m, &m.P, &m.rho, &m.gamma1})
+    v->insert(v->begin() + static_cast<std::ptrdiff_t>(k) + 1, (*v)[k]);
+  for (auto* v : {&m.T, &m.L, &m.nabla_ad, &m.u})
+    if (!v->empty()) v->insert(v->begin() + static_cast<std::ptrdiff_t>(k) + 1, (*v)[k]);
+  m.extra.clear();
+  m.line.clear();
+  for (std::size_t j = k + 1; j < m.size(); ++j) m.rho[j] *= 0.5;
+  const Structure s(m);
+  REQUIRE(s.discontinuity()[k]);
+  const auto half = every_other_row(s);
+  REQUIRE(half.has_value());
+  // The same rows, by the documented rule, through the validating constructor.
+  StellarModel rows;
+  const auto keep = every_other_node(s.interval_count(), s.discontinuity());
+  std::size_t node = 0, next = 0;
+  for (std::size_t j = 0; j < s.table().size(); ++j) {
+    if (j > 0 && s.table().r[j] != s.table().r[j - 1]) ++node;
+    while (next < keep.size() && keep[next] < node) ++next;
+    if (next < keep.size() && keep[next] == node) {
+      rows.r.push_back(s.table().r[j]);
+      rows.m.push_back(s.table().m[j]);
+      rows.P.push_back(s.table().P[j]);
+      rows.rho.push_back(s.table().rho[j]);
+      rows.gamma1.push_back(s.table().gamma1[j]);
+    }
+  }
+  const Structure ref(rows);
+  REQUIRE(half->node_r() == ref.node_r());
+  CHECK(half->discontinuity() == ref.discontinuity());
+  for (std::size_t i = 0; i < ref.interval_count(); ++i)
+    for (const double t : {0.0, 0.25, 0.5, 0.9, 1.0}) {
+      const StructurePoint a = half->at(i, t), b = ref.at(i, t);
+      CHECK(a.m == b.m);
+      CHECK(a.P == b.P);
+      CHECK(a.rho == b.rho);
+      CHECK(a.gamma1 == b.gamma1);
+      CHECK(a.dP_dr == b.dP_dr);
+    }
+}
+
+TEST_CASE("Dirichlet ends remove exactly the end rows and columns of the free pencil") {
+  // Essential (Dirichlet) conditions by elimination (common practice): fixing u = 0 at an end
+  // drops that unknown's row and column and changes nothing else; on fine and coarse meshes.
+  const auto model = test::uniform_sphere(test::uniform_mesh(31, 0.2), 1.4);
+  const Structure s(model, InnerCondition::rigid);
+  const WeakForm f = make_stellar_form(s, SurfaceCondition::regular);
+  for (const auto& nodes : {all_nodes(f), every_other_node(f)}) {
+    const auto free = assemble(f, {nodes, false, false});
+    const auto fixed = assemble(f, {nodes, true, true});
+    REQUIRE(fixed.size() + 2 == free.size());
+    for (std::size_t j = 0; j < fixed.size(); ++j) {
+      CHECK(fixed.k_diag[j] == free.k_diag[j + 1]);
+      CHECK(fixed.m_diag[j] == free.m_diag[j + 1]);
+      CHECK(fixed.node[j] == free.node[j + 1]);
+    }
+    for (std::size_t j = 0; j + 1 < fixed.size(); ++j) {
+      CHECK(fixed.k_off[j] == free.k_off[j + 1]);
+      CHECK(fixed.m_off[j] == free.m_off[j + 1]);
+    }
+  }
 }
 
 TEST_CASE("every_other_node keeps the ends and the flagged nodes") {

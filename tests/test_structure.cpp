@@ -8,6 +8,7 @@
 #include <doctest/doctest.h>
 
 #include <cmath>
+#include <iterator>
 
 using namespace radmode;
 
@@ -142,4 +143,32 @@ TEST_CASE("an invalid model is rejected by the preparation") {
   auto model = test::uniform_sphere(test::uniform_mesh(20), 5.0 / 3.0);
   model.rho[4] = -1.0;
   CHECK_THROWS_AS(Structure{model}, InputError);
+}
+
+TEST_CASE("values_at: the values of at(), bit for bit, in every interval shape") {
+  // Consistency of the two evaluation paths (values_at is the cheap one the form samplers
+  // use). The table has a discontinuity, a zero-density surface (power law to zero), a zero
+  // surface pressure, log and linear cubics and a centre extension.
+  StellarModel m;
+  const double xs[] = {0.05, 0.1, 0.2, 0.3, 0.4, 0.5, 0.5, 0.6, 0.7, 0.8, 0.9, 0.95, 1.0};
+  for (std::size_t i = 0; i < std::size(xs); ++i) {
+    const double x = xs[i];
+    const bool outer = i >= 6;
+    m.r.push_back(x);
+    m.m.push_back(x * x * x);
+    m.P.push_back(i + 1 == std::size(xs) ? 0.0 : (1.0 - x * x) * (1.0 - x * x));
+    m.rho.push_back(i + 1 == std::size(xs) ? 0.0 : (outer ? 1.0 : 3.0) * (1.0 - x * x));
+    m.gamma1.push_back(outer ? 5.0 / 3.0 : 1.4);
+  }
+  const Structure s(m);
+  REQUIRE(s.extended_centre());
+  for (std::size_t i = 0; i < s.interval_count(); ++i)
+    for (const double t : {0.0, 0.1127016653792583, 0.3, 0.5, 0.8872983346207417, 1.0}) {
+      const StructurePoint p = s.at(i, t);
+      const StructureValues v = s.values_at(i, t);
+      CHECK(v.m == p.m);
+      CHECK(v.P == p.P);
+      CHECK(v.rho == p.rho);
+      CHECK(v.gamma1 == p.gamma1);
+    }
 }

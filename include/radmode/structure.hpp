@@ -39,6 +39,7 @@
 #include "radmode/eigensolve.hpp"
 #include "radmode/model.hpp"
 
+#include <cmath>
 #include <cstddef>
 #include <optional>
 #include <utility>
@@ -156,5 +157,40 @@ private:
   bool m_extended = false, m_has_nabla_ad = false;
   InnerCondition m_inner = InnerCondition::centre;
 };
+
+// Inline so that the form samplers (discretize.cpp) compile the evaluation into their loops.
+inline Structure::Basis Structure::basis(double t) {
+  const double t2 = t * t, t3 = t2 * t;
+  return {2 * t3 - 3 * t2 + 1, t3 - 2 * t2 + t, -2 * t3 + 3 * t2, t3 - t2,
+          6 * t2 - 6 * t,      3 * t2 - 4 * t + 1, -6 * t2 + 6 * t, 3 * t2 - 2 * t};
+}
+
+inline double Structure::value(const Curve& c, double t, const Basis& b) {
+  // The first member of eval(c, t, b), with the same arithmetic.
+  switch (c.shape) {
+  case Shape::linear:
+    return c.f0 + t * (c.f1 - c.f0);
+  case Shape::log_linear:
+    return std::exp(c.f0 + t * (c.f1 - c.f0));
+  case Shape::power_to_zero:
+    return c.f0 * std::pow(1.0 - t, c.g0);
+  case Shape::hermite:
+    return b.h00 * c.f0 + b.h10 * c.g0 + b.h01 * c.f1 + b.h11 * c.g1;
+  case Shape::log_hermite:
+  default:
+    return std::exp(b.h00 * c.f0 + b.h10 * c.g0 + b.h01 * c.f1 + b.h11 * c.g1);
+  }
+}
+
+inline StructureValues Structure::values_at(std::size_t interval, double t) const {
+  const Interval& iv = m_iv[interval];
+  if (t == 0.0 || t == 1.0) {
+    const std::size_t row = t == 1.0 ? iv.row + 1 : iv.row;
+    return {m_table.m[row], m_table.P[row], m_table.rho[row], m_table.gamma1[row]};
+  }
+  const Basis b = basis(t);
+  return {value(iv.m, t, b), value(iv.P, t, b), value(iv.rho, t, b),
+          (1.0 - t) * iv.g0 + t * iv.g1};
+}
 
 } // namespace radmode

@@ -4,6 +4,8 @@
 #include "radmode/error.hpp"
 #include "radmode/structure.hpp"
 
+#include "pencil_block.hpp"
+
 #include <Eigen/Dense>
 #include <Spectra/SymGEigsShiftSolver.h>
 
@@ -221,36 +223,61 @@ struct Engine {
     return true;
   }
 
-  /// Rayleigh quotient only (lambda field), x untouched.
-  PencilEigenpair finish_quotient_only(const std::vector<double>& x) const {
-    double xkx = 0, xmx = 0;
-    const std::size_t m = p.size();
-    for (std::size_t j = 0; j < m; ++j) {
-      xkx += p.k_diag[j] * x[j] * x[j];
-      xmx += p.m_diag[j] * x[j] * x[j];
-    }
-    for (std::size_t j = 0; j + 1 < m; ++j) {
-      xkx += 2 * p.k_off[j] * x[j] * x[j + 1];
-      xmx += 2 * p.m_off[j] * x[j] * x[j + 1];
-    }
+  /// Fills lambda (Rayleigh quotient), M-normalized x, residual, and (with_index) index and
+  /// multiplicity by inertia.
+  PencilEigenpair finish(std::vector<double> x, bool with_index = true) {
     PencilEigenpair e;
-    e.lambda = xkx / xmx;
+    e.x = std::move(x);
+    const double xmx = set_residual(e, true);
+    const double norm = 1.0 / std::sqrt(xmx);
+    for (double& v : e.x) v *= norm;
+    if (!with_index || !std::isfinite(e.lambda)) return e; // index -1: rejected by the caller
+    const double margin = count_margin(e.lambda, scale);
+    e.index = count(e.lambda - margin);
+    e.multiplicity = count(e.lambda + margin) - e.index;
     return e;
   }
 
-  /// Fills lambda (Rayleigh quotient), M-normalized x, residual, index and multiplicity.
-  PencilEigenpair finish(std::vector<double> x) {
+  /// finish() for several vectors, with the inertia counts of all of them done together.
+  std::vector<PencilEigenpair> finish_all(std::vector<std::vector<double>> xs) {
+    std::vector<PencilEigenpair> out;
+    out.reserve(xs.size());
+    std::vector<double> shifts;
+    for (auto& x : xs) {
+      out.push_back(finish(std::move(x), false));
+      const double l = out.back().lambda;
+      if (!std::isfinite(l)) continue;
+      const double margin = count_margin(l, scale);
+      shifts.push_back(l - margin);
+      shifts.push_back(l + margin);
+    }
+    const std::vector<int> c = detail::inertia_below_many(p, shifts);
+    counts += static_cast<int>(shifts.size());
+    std::size_t k = 0;
+    for (auto& e : out) {
+      if (!std::isfinite(e.lambda)) continue;
+      e.index = c[k];
+      e.multiplicity = c[k + 1] - c[k];
+      k += 2;
+    }
+    return out;
+  }
+
+  /// Residual of (e.lambda, e.x) normalized with the current lambda_ref (scale-free in x);
+  /// with `quotient`, e.lambda is first set to the Rayleigh quotient x^T K x / x^T M x, summed
+  /// as x . (K x): the row sums of K x cancel locally, where sum K_ij x_i x_j term by term
+  /// would lose ~1e-9 relative to cancellation on a 2,000-point mesh. Returns x^T M x.
+  double set_residual(PencilEigenpair& e, bool quotient = false) const {
     const std::size_t m = p.size();
     std::vector<double> kx(m), mx(m);
-    mult(p.k_diag, p.k_off, x.data(), kx.data());
-    mult(p.m_diag, p.m_off, x.data(), mx.data());
+    mult(p.k_diag, p.k_off, e.x.data(), kx.data());
+    mult(p.m_diag, p.m_off, e.x.data(), mx.data());
     double xkx = 0, xmx = 0;
     for (std::size_t j = 0; j < m; ++j) {
-      xkx += x[j] * kx[j];
-      xmx += x[j] * mx[j];
+      xkx += e.x[j] * kx[j];
+      xmx += e.x[j] * mx[j];
     }
-    PencilEigenpair e;
-    e.lambda = xkx / xmx;
+    if (quotient) e.lambda = xkx / xmx;
     double r2 = 0, k2 = 0, m2 = 0;
     for (std::size_t j = 0; j < m; ++j) {
       const double r = kx[j] - e.lambda * mx[j];
@@ -260,14 +287,7 @@ struct Engine {
     }
     const double denom = std::sqrt(k2) + std::max(std::abs(e.lambda), lambda_ref) * std::sqrt(m2);
     e.residual = denom > 0 ? std::sqrt(r2) / denom : 0.0;
-    const double norm = 1.0 / std::sqrt(xmx);
-    for (double& v : x) v *= norm;
-    e.x = std::move(x);
-    if (!std::isfinite(e.lambda)) return e; // index stays -1: rejected by the caller
-    const double margin = count_margin(e.lambda, scale);
-    e.index = count(e.lambda - margin);
-    e.multiplicity = count(e.lambda + margin) - e.index;
-    return e;
+    return xmx;
   }
 
   /// Inverse iteration at shift mu from a start vector; a few steps suffice when mu is close.
@@ -331,10 +351,10 @@ void finalize(Engine& eng, std::vector<PencilEigenpair> found, int i0, int i1, P
   double lambda_ref = 0;
   for (const auto& e : found)
     if (std::isfinite(e.lambda)) lambda_ref = std::max(lambda_ref, std::abs(e.lambda));
-  if (lambda_ref > 0) {
+  if (lambda_ref > eng.lambda_ref) {
     eng.lambda_ref = lambda_ref;
     for (auto& e : found)
-      if (std::abs(e.lambda) < lambda_ref) e = eng.finish(std::move(e.x));
+      if (std::isfinite(e.lambda) && std::abs(e.lambda) < lambda_ref) eng.set_residual(e);
   }
 
   // Keep one pair per target index (verified by inertia); recover the missing ones.
@@ -382,31 +402,16 @@ void finalize(Engine& eng, std::vector<PencilEigenpair> found, int i0, int i1, P
 }
 
 /// Rayleigh quotient iteration from good start vectors (e.g. eigenvectors of a coarser mesh
-/// prolonged to this one): two to four steps, each an O(N) LDL^T factorization and solve, then the
-/// same inertia verification and recovery as solve_pencil.
+/// prolonged to this one): one to four steps, each an O(N) LDL^T factorization and solve (all
+/// vectors advanced together, see pencil_block.hpp), until the residual is below
+/// `residual_tol` or the quotient stops moving; then the same inertia verification and
+/// recovery as solve_pencil. (The eigenvalue error is of the order of the squared residual.)
 PencilSpectrum refine_from(const TridiagonalPencil& p, int i0, int i1,
-                           std::vector<std::vector<double>> starts) {
+                           std::vector<std::vector<double>> starts, double residual_tol) {
   Engine eng(p);
   PencilSpectrum out;
-  std::vector<PencilEigenpair> found;
-  Ldlt f(p);
-  std::vector<double> mx(p.size());
-  for (auto& x : starts) {
-    double previous = std::numeric_limits<double>::quiet_NaN();
-    for (int it = 0; it < 4; ++it) {
-      const PencilEigenpair e = eng.finish_quotient_only(x);
-      if (!std::isfinite(e.lambda)) break;
-      // Converged once the quotient stops moving (cubic convergence: one step after that
-      // would change nothing); at least two steps from the prolonged vector.
-      if (it >= 2 && std::abs(e.lambda - previous) <= 1e-14 * std::abs(e.lambda) + 4 * eps * eng.scale)
-        break;
-      previous = e.lambda;
-      f.factor(e.lambda);
-      if (!inverse_step(p, f, x, mx)) break;
-    }
-    found.push_back(eng.finish(std::move(x)));
-  }
-  finalize(eng, std::move(found), i0, i1, out);
+  detail::rayleigh_iterate(p, starts, 2, 4, eng.scale, residual_tol);
+  finalize(eng, eng.finish_all(std::move(starts)), i0, i1, out);
   return out;
 }
 
@@ -492,13 +497,13 @@ PencilSpectrum solve_pencil(const TridiagonalPencil& p, const PencilRequest& req
   const int nev = i1 - i0;
   if (nev <= 0) return out;
 
-  // 2. Solve: Spectra shift-invert Lanczos, or dense for small pencils.
+  // 2. Solve: Spectra shift-invert Lanczos, or dense for tiny pencils (N <= 40, or a Lanczos
+  //    basis as large as the pencil).
   std::vector<PencilEigenpair> found;
   const int ncv = std::min(n, std::max(2 * nev + 1, nev + 10));
-  if (n <= 200 || ncv >= n) {
+  if (n <= 40 || ncv >= n) {
     std::vector<double> lambdas;
-    auto xs = dense_solve(p, i0, nev, lambdas);
-    for (auto& x : xs) found.push_back(eng.finish(std::move(x)));
+    found = eng.finish_all(dense_solve(p, i0, nev, lambdas));
   } else {
     try {
       ShiftInvertOp op(p);
@@ -515,15 +520,13 @@ PencilSpectrum solve_pencil(const TridiagonalPencil& p, const PencilRequest& req
       out.iterations = static_cast<int>(eigs.num_iterations());
       if (nconv > 0) {
         const Eigen::MatrixXd vecs = eigs.eigenvectors();
-        Ldlt f(p);
-        std::vector<double> mx(p.size());
+        std::vector<std::vector<double>> xs;
         for (Eigen::Index c = 0; c < vecs.cols(); ++c) {
           const Vec v = vecs.col(c);
-          std::vector<double> x(v.data(), v.data() + v.size());
-          f.factor(eng.finish_quotient_only(x).lambda);
-          inverse_step(p, f, x, mx);
-          found.push_back(eng.finish(std::move(x)));
+          xs.emplace_back(v.data(), v.data() + v.size());
         }
+        detail::rayleigh_iterate(p, xs, 1, 1, eng.scale);
+        found = eng.finish_all(std::move(xs));
       }
       if (eigs.info() != Spectra::CompInfo::Successful) {
         out.message = "Spectra did not converge for every requested eigenvalue (" +
@@ -612,14 +615,18 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
   out.node_r = s.node_r();
   if (i1 <= i0) return out; // an empty window
 
-  // Richardson partner mesh: every other node (discontinuities kept).
-  const MeshSelection coarse{every_other_node(form, s.discontinuity()), rigid, false};
-  const std::size_t coarse_unknowns = coarse.nodes.size() - (rigid ? 1 : 0);
-  std::optional<TridiagonalPencil> pc;
-  if (coarse_unknowns >= 2) pc = assemble(form, coarse);
+  // Richardson partner mesh: every other node (discontinuities kept), its pencil the Galerkin
+  // restriction of the fine one (identical to assembling it, see pencil_block.hpp).
+  std::optional<detail::MeshLevel> coarse;
+  if (every_other_node(form, s.discontinuity()).size() - (rigid ? 1 : 0) >= 2)
+    coarse = detail::coarsen(fine.nodes, rigid, pf, form.x, s.discontinuity());
+  const TridiagonalPencil* pc = coarse ? &coarse->pencil : nullptr;
 
-  // Nested iteration: Spectra on the coarse mesh, then Rayleigh quotient iteration on the fine
-  // mesh from the prolonged coarse eigenvectors (both results are needed for Richardson). When
+  // Nested iteration over a family of meshes, each every other node of the one above:
+  // Spectra shift-invert Lanczos on the coarsest, then Rayleigh quotient iteration on each
+  // finer mesh from the prolonged eigenvectors of the one below, up to the every-other-node
+  // mesh and the model mesh (both needed for Richardson). Levels below the every-other-node
+  // mesh only supply start vectors; each of the two top levels is verified by inertia. When
   // the coarse mesh is too small for the request, Spectra runs on the fine mesh directly.
   std::optional<PencilSpectrum> sc;
   PencilSpectrum sf;
@@ -628,14 +635,47 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
   by_index.first = i0;
   by_index.count = i1 - i0;
   if (pc && static_cast<int>(pc->size()) >= 2 * i1 + 20) {
-    sc = solve_pencil(*pc, by_index);
-    if (sc->status == SolveStatus::ok && static_cast<int>(sc->pairs.size()) == i1 - i0) {
-      std::vector<std::vector<double>> starts;
-      starts.reserve(sc->pairs.size());
-      for (const auto& c : sc->pairs) starts.push_back(prolong(form.x, *pc, c.x, pf));
-      sf = refine_from(pf, i0, i1, std::move(starts));
-      sf.iterations = sc->iterations;
-      nested = true;
+    // Lower levels while they keep at least max(4 i1 + 40, 100) unknowns (enough nodes per
+    // wavelength for good start vectors).
+    const std::size_t min_unknowns = static_cast<std::size_t>(std::max(4 * i1 + 40, 100));
+    std::vector<detail::MeshLevel> lower;
+    while (true) {
+      const detail::MeshLevel& top = lower.empty() ? *coarse : lower.back();
+      if (top.pencil.size() < 2 * min_unknowns) break;
+      lower.push_back(detail::coarsen(top, form.x, s.discontinuity()));
+    }
+    const TridiagonalPencil& bottom = lower.empty() ? *pc : lower.back().pencil;
+    PencilSpectrum sb = solve_pencil(bottom, by_index);
+    if (sb.status == SolveStatus::ok && static_cast<int>(sb.pairs.size()) == i1 - i0) {
+      std::vector<std::vector<double>> xs;
+      xs.reserve(sb.pairs.size());
+      for (auto& c : sb.pairs) xs.push_back(std::move(c.x));
+      // Up through the lower levels: one Rayleigh quotient step each (start vectors only).
+      const TridiagonalPencil* from = &bottom;
+      for (std::size_t l = lower.size(); l-- > 0;) {
+        const TridiagonalPencil& to = l == 0 ? *pc : lower[l - 1].pencil;
+        for (auto& x : xs) x = prolong(form.x, *from, x, to);
+        if (l > 0) detail::rayleigh_iterate(to, xs, 1, 1, spectrum_scale(to));
+        from = &to;
+      }
+      if (lower.empty()) {
+        sc = std::move(sb);
+      } else {
+        // Its eigenvectors only start the fine mesh's iteration: residual 1e-7 suffices (the
+        // eigenvalues are then exact to round-off, being quadratic in the residual).
+        sc = refine_from(*pc, i0, i1, std::move(xs), 1e-7);
+        sc->iterations = sb.iterations;
+      }
+      if (sc->status == SolveStatus::ok && static_cast<int>(sc->pairs.size()) == i1 - i0) {
+        std::vector<std::vector<double>> starts;
+        starts.reserve(sc->pairs.size());
+        for (const auto& c : sc->pairs) starts.push_back(prolong(form.x, *pc, c.x, pf));
+        sf = refine_from(pf, i0, i1, std::move(starts), 1e-9);
+        sf.iterations = sb.iterations;
+        nested = true;
+      } else {
+        sc.reset();
+      }
     }
   }
   if (!nested) {

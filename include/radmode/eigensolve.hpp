@@ -15,11 +15,16 @@
 // value is normally far more accurate), plus interpolation_error, plus the solver residual
 // and round-off (2 residual |omega2| + 100 eps sum|x_i K_ij x_j|/x^T M x).
 //
-// Solution path (solve_modes): Spectra shift-invert Lanczos on the coarse mesh, then Rayleigh
-// quotient iteration on the fine mesh started from the prolonged coarse eigenvectors (nested
-// iteration: both meshes are needed for Richardson anyway); if the coarse mesh is too small for
-// the request, Spectra runs on the fine mesh. Every eigenvalue's index is then verified by
-// inertia; a missing index is recovered by bisection on the inertia count + inverse iteration.
+// Solution path (solve_modes): nested iteration over a family of meshes, each every other
+// node of the one above (pencils by Galerkin restriction, identical to assembling them):
+// Spectra shift-invert Lanczos on the coarsest (at least max(4 count + 40, 100) unknowns),
+// then Rayleigh quotient iteration on each finer mesh from the prolonged eigenvectors of the
+// one below, up to the every-other-node mesh and the model mesh (both are needed for
+// Richardson anyway); on the two top meshes it runs until the residual is below 1e-7
+// (every-other-node) and 1e-9 (model mesh). If the coarse mesh is too small for the request,
+// Spectra runs on the fine mesh. Every eigenvalue's index on both top meshes is then verified
+// by inertia; a missing index is recovered by bisection on the inertia count + inverse
+// iteration.
 // The error estimate also contains the sensitivity to the interpolation between table points
 // (ModeSolution::interpolation_error) and a residual/round-off term.
 //
@@ -140,7 +145,7 @@ struct PencilSpectrum {
 };
 
 /// Computes the requested eigenpairs: shift chosen from inertia counts, Spectra shift-invert
-/// Lanczos with an O(N) tridiagonal LDL^T operator (dense solve for N <= 200), every result
+/// Lanczos with an O(N) tridiagonal LDL^T operator (dense solve for N <= 40), every result
 /// checked by inertia; a missed index is recovered by bisection on the inertia count plus
 /// inverse iteration. Throws UsageError for an invalid request or pencil.
 PencilSpectrum solve_pencil(const TridiagonalPencil& pencil, const PencilRequest& request);

@@ -1,0 +1,53 @@
+#pragma once
+// Internal to radmode_core: kernels on symmetric tridiagonal pencils (K, M) that work on
+// several shifts or vectors at once, and the Galerkin coarsening used by the nested solve.
+//
+// Why blocks: the LDL^T recurrence of K - s M, d_j = (K - sM)_jj - e_{j-1}^2 / d_{j-1}, is a
+// chain of dependent divisions, so one factorization runs at the latency of the divider.
+// Factorizations at different shifts are independent: advancing up to four of them in the
+// same loop lets the processor overlap their divisions, and B shifts cost little more than
+// one. Every per-shift result is exactly what the one-shift code computes (same operations
+// in the same order), so inertia counts do not depend on how shifts were grouped.
+#include "radmode/discretize.hpp"
+
+#include <cstddef>
+#include <vector>
+
+namespace radmode::detail {
+
+/// counts[b] = inertia_below(p, shifts[b]) for every b (same arithmetic, same results).
+std::vector<int> inertia_below_many(const TridiagonalPencil& p, const std::vector<double>& shifts);
+
+/// Rayleigh quotient iteration on every vector of `xs` together (each of size p.size()):
+/// x <- (K - rho(x) M)^{-1} M x, scaled to max |x| = 1, at most `max_steps` steps. A vector
+/// stops once, after at least `min_steps` steps, its quotient changes by no more than
+/// 1e-14 |rho| + 4 eps `scale` between steps (scale: magnitude of the spectrum), or (when
+/// residual_tol > 0) after any step whose residual ||K x - rho M x|| / (||K x|| + |rho| ||M x||)
+/// is at most residual_tol. Vectors that become zero or non-finite are left as they were
+/// before the failing step.
+void rayleigh_iterate(const TridiagonalPencil& p, std::vector<std::vector<double>>& xs,
+                      int min_steps, int max_steps, double scale, double residual_tol = 0);
+
+/// A coarse level of a nested family of linear-element meshes: the node list (indices into
+/// the base mesh, including a Dirichlet end whose unknown is removed) and its pencil.
+struct MeshLevel {
+  std::vector<std::size_t> nodes; ///< increasing base indices, first and last base node included
+  bool fix_first = false;         ///< the first node's unknown is removed (u = 0 there)
+  TridiagonalPencil pencil;       ///< row j belongs to base node pencil.node[j]
+};
+
+/// The next coarser level: every other node of `fine.nodes` (keeping its ends and the base
+/// nodes flagged in `keep_base`, see every_other_node), with the Galerkin pencil
+/// P^T K P, P^T M P, P the linear interpolation from the coarse to the fine level (x: base
+/// mesh coordinates). For nested linear elements with one shared quadrature this is exactly
+/// the pencil assemble() would build on the coarse mesh, at O(N) cost without re-reading the
+/// quadrature data. Requires at least 2 coarse unknowns.
+MeshLevel coarsen(const std::vector<std::size_t>& fine_nodes, bool fix_first,
+                  const TridiagonalPencil& fine_pencil, const std::vector<double>& x,
+                  const std::vector<bool>& keep_base);
+inline MeshLevel coarsen(const MeshLevel& fine, const std::vector<double>& x,
+                         const std::vector<bool>& keep_base) {
+  return coarsen(fine.nodes, fine.fix_first, fine.pencil, x, keep_base);
+}
+
+} // namespace radmode::detail

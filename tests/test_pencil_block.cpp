@@ -1,0 +1,139 @@
+// The block kernels and the Galerkin coarsening behind the nested solve (src/pencil_block.hpp,
+// internal to radmode_core).
+#include "../src/pencil_block.hpp"
+
+#include "analytic_models.hpp"
+#include "radmode/discretize.hpp"
+#include "radmode/generators.hpp"
+
+#include <doctest/doctest.h>
+
+#include <cmath>
+
+using namespace radmode;
+
+namespace {
+
+/// -u'' = lambda u on (0, pi), u(0) = u(pi) = 0, linear elements on a uniform mesh of n
+/// intervals (h = pi/n). The discrete eigenvalues are known in closed form (common practice
+/// for linear elements, e.g. Strang & Fix, "An Analysis of the Finite Element Method", ch. 6;
+/// quoted from memory and checked here against the continuous limit (k+1)^2):
+///     lambda_k = (6/h^2) (1 - cos((k+1) h)) / (2 + cos((k+1) h)), eigenvector sin((k+1) x_j).
+struct Dirichlet {
+  std::size_t n;
+  WeakForm form;
+  TridiagonalPencil pencil;
+  explicit Dirichlet(std::size_t intervals) : n(intervals) {
+    std::vector<double> x(n + 1);
+    for (std::size_t i = 0; i <= n; ++i) x[i] = M_PI * static_cast<double>(i) / static_cast<double>(n);
+    form = sample_form(x, [](std::size_t, double, double) {
+      FormCoefficients c;
+      c.a = 1;
+      c.d = 1;
+      return c;
+    });
+    pencil = assemble(form, {all_nodes(form), true, true});
+  }
+  double exact(int k) const {
+    const double h = M_PI / static_cast<double>(n), c = std::cos((k + 1) * h);
+    return 6.0 / (h * h) * (1 - c) / (2 + c);
+  }
+};
+
+double quotient(const TridiagonalPencil& p, const std::vector<double>& x) {
+  double xkx = 0, xmx = 0;
+  for (std::size_t j = 0; j < x.size(); ++j) {
+    double kx = p.k_diag[j] * x[j], mx = p.m_diag[j] * x[j];
+    if (j > 0) kx += p.k_off[j - 1] * x[j - 1], mx += p.m_off[j - 1] * x[j - 1];
+    if (j + 1 < x.size()) kx += p.k_off[j] * x[j + 1], mx += p.m_off[j] * x[j + 1];
+    xkx += x[j] * kx;
+    xmx += x[j] * mx;
+  }
+  return xkx / xmx;
+}
+
+} // namespace
+
+TEST_CASE("the closed-form discrete spectrum is what the inertia counts see") {
+  const Dirichlet d(400);
+  for (int k : {0, 3, 20, 150}) {
+    const double lk = d.exact(k);
+    CHECK(lk == doctest::Approx((k + 1.0) * (k + 1.0)).epsilon(0.2)); // continuous limit
+    CHECK(inertia_below(d.pencil, lk * (1 - 1e-9)) == k);
+    CHECK(inertia_below(d.pencil, lk * (1 + 1e-9)) == k + 1);
+  }
+}
+
+TEST_CASE("inertia counts for many shifts at once equal the one-shift counts") {
+  const Dirichlet d(300);
+  std::vector<double> shifts;
+  for (int i = 0; i < 23; ++i) shifts.push_back(-5.0 + 3.7 * i * i); // groups of 4, 4, 4, 4, 4, 3
+  shifts.push_back(d.exact(7));                                      // on an eigenvalue
+  for (std::size_t width = 1; width <= shifts.size(); ++width) {
+    const std::vector<double> part(shifts.begin(), shifts.begin() + static_cast<std::ptrdiff_t>(width));
+    const std::vector<int> many = detail::inertia_below_many(d.pencil, part);
+    REQUIRE(many.size() == width);
+    for (std::size_t b = 0; b < width; ++b) CHECK(many[b] == inertia_below(d.pencil, part[b]));
+  }
+}
+
+TEST_CASE("Rayleigh quotient iteration reaches the closed-form eigenpairs from rough starts") {
+  const Dirichlet d(600);
+  const std::size_t m = d.pencil.size();
+  // Starts: sin((k+1) x) plus 2% of a smooth disturbance; five vectors = chunks of 3 and 2.
+  std::vector<std::vector<double>> xs;
+  for (int k = 0; k < 5; ++k) {
+    std::vector<double> x(m);
+    for (std::size_t j = 0; j < m; ++j) {
+      const double xj = d.form.x[d.pencil.node[j]];
+      x[j] = std::sin((k + 1) * xj) + 0.02 * std::sin(xj) * std::cos(3.3 * xj);
+    }
+    xs.push_back(x);
+  }
+  detail::rayleigh_iterate(d.pencil, xs, 2, 6, d.exact(600), 1e-12);
+  for (int k = 0; k < 5; ++k) {
+    const auto& x = xs[static_cast<std::size_t>(k)];
+    // (round-off of the quotient: ~eps lambda_max/lambda_0 ~ 1e-11 for the fundamental)
+    CHECK(quotient(d.pencil, x) == doctest::Approx(d.exact(k)).epsilon(1e-10));
+    double big = 0;
+    for (const double v : x) big = std::max(big, std::abs(v));
+    CHECK(big == doctest::Approx(1.0)); // scaled to max |x| = 1
+  }
+}
+
+TEST_CASE("Galerkin coarsening equals assembling the every-other-node mesh") {
+  // A stellar form (n = 3 polytrope, non-uniform mesh), free or rigid inner end, with and
+  // without a kept node inside; and an odd number of intervals (one single-interval element).
+  GeneratorOptions g;
+  g.points = 301;
+  const Structure s(make_polytrope(3.0, g));
+  const WeakForm f = make_stellar_form(s, SurfaceCondition::regular);
+  for (const bool rigid : {false, true})
+    for (const std::size_t kept : {std::size_t{0}, std::size_t{117}}) {
+      std::vector<bool> keep(f.x.size(), false);
+      if (kept) keep[kept] = true;
+      const detail::MeshLevel fine{all_nodes(f), rigid, assemble(f, {all_nodes(f), rigid, false})};
+      const detail::MeshLevel coarse = detail::coarsen(fine, f.x, keep);
+      CHECK(coarse.nodes == every_other_node(f, keep));
+      const TridiagonalPencil direct = assemble(f, {every_other_node(f, keep), rigid, false});
+      REQUIRE(coarse.pencil.size() == direct.size());
+      CHECK(coarse.pencil.node == direct.node);
+      double kmax = 0, mmax = 0;
+      for (std::size_t j = 0; j < direct.size(); ++j) {
+        kmax = std::max(kmax, std::abs(direct.k_diag[j]));
+        mmax = std::max(mmax, std::abs(direct.m_diag[j]));
+      }
+      for (std::size_t j = 0; j < direct.size(); ++j) {
+        CHECK(std::abs(coarse.pencil.k_diag[j] - direct.k_diag[j]) <= 1e-13 * kmax);
+        CHECK(std::abs(coarse.pencil.m_diag[j] - direct.m_diag[j]) <= 1e-13 * mmax);
+        if (j + 1 < direct.size()) {
+          CHECK(std::abs(coarse.pencil.k_off[j] - direct.k_off[j]) <= 1e-13 * kmax);
+          CHECK(std::abs(coarse.pencil.m_off[j] - direct.m_off[j]) <= 1e-13 * mmax);
+        }
+      }
+      // Coarsening again keeps working down to a handful of unknowns.
+      detail::MeshLevel level = coarse;
+      while (level.pencil.size() >= 8) level = detail::coarsen(level, f.x, keep);
+      CHECK(level.pencil.size() >= 2);
+    }
+}

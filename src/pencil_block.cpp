@@ -13,21 +13,28 @@ namespace {
 
 constexpr double eps = std::numeric_limits<double>::epsilon();
 
-/// Calls f(std::integral_constant<int, B>{}) for B = width (1..4).
+/// Largest number of shifts or vectors advanced together.
+constexpr std::size_t max_width = 8;
+
+/// Calls f(std::integral_constant<std::size_t, B>{}) for B = width (1..max_width).
 template <class F> void with_width(std::size_t width, F&& f) {
   switch (width) {
   case 1: f(std::integral_constant<std::size_t, 1>{}); break;
   case 2: f(std::integral_constant<std::size_t, 2>{}); break;
   case 3: f(std::integral_constant<std::size_t, 3>{}); break;
-  default: f(std::integral_constant<std::size_t, 4>{}); break;
+  case 4: f(std::integral_constant<std::size_t, 4>{}); break;
+  case 5: f(std::integral_constant<std::size_t, 5>{}); break;
+  case 6: f(std::integral_constant<std::size_t, 6>{}); break;
+  case 7: f(std::integral_constant<std::size_t, 7>{}); break;
+  default: f(std::integral_constant<std::size_t, 8>{}); break;
   }
 }
 
-/// Splits `total` items into chunks of at most four, as even as possible, and calls
+/// Splits `total` items into chunks of at most max_width, as even as possible, and calls
 /// chunk(first, width) for each.
 template <class F> void for_chunks(std::size_t total, F&& chunk) {
   if (total == 0) return;
-  const std::size_t chunks = (total + 3) / 4;
+  const std::size_t chunks = (total + max_width - 1) / max_width;
   std::size_t first = 0;
   for (std::size_t c = 0; c < chunks; ++c) {
     const std::size_t width = (total - first + (chunks - c) - 1) / (chunks - c);
@@ -63,58 +70,53 @@ template <std::size_t B> void count_block(const TridiagonalPencil& p, const doub
   for (std::size_t b = 0; b < B; ++b) out[b] = negative[b];
 }
 
-/// Rayleigh quotient iteration of B vectors held interleaved (x[j * B + b]). One step is
-/// three passes over the mesh: (1) M x, the LDL^T factorization of K - rho M and the forward
-/// substitution together (the Thomas algorithm); (2) the diagonal scaling and the backward
-/// substitution, with max |y|; (3) the new x = y / max |y| and its Rayleigh quotient. Values
-/// carried from row to row stay in registers, so the passes run at the latency of their
-/// recurrences, which the B independent columns overlap.
-template <std::size_t B> class RqiBlock {
+/// Work arrays of the block step, kept per thread and reused: allocating and zeroing them
+/// for every step cost as much as the arithmetic.
+struct Workspace {
+  std::vector<double> x, y, l, dinv;
+  void reserve(std::size_t size) {
+    for (auto* v : {&x, &y, &l, &dinv})
+      if (v->size() < size) v->resize(size);
+  }
+};
+thread_local Workspace t_work;
+
+/// One Rayleigh quotient iteration step for B vectors, held interleaved (x[j * B + b]) in the
+/// thread's workspace. A step is three passes over the mesh: (1) M x, the LDL^T factorization
+/// of K - rho M and the forward substitution together (the Thomas algorithm); (2) the
+/// diagonal scaling and the backward substitution, with max |y|; (3) the new x = y / max |y|
+/// and its Rayleigh quotient (and, on request, a fourth pass for its residual). Values carried
+/// from row to row stay in registers, so the passes run at the latency of their recurrences,
+/// which the B independent columns overlap.
+template <std::size_t B> class RqiStep {
 public:
-  RqiBlock(const TridiagonalPencil& p, double scale)
-      : m_p(p), m_n(p.size()), m_scale(scale), m_x(m_n * B), m_y(m_n * B), m_l(m_n * B),
-        m_dinv(m_n * B) {
-    for (std::size_t j = 0; j < m_n; ++j) {
-      m_kmax = std::max(m_kmax, std::abs(p.k_diag[j]));
-      m_mmax = std::max(m_mmax, p.m_diag[j]);
-    }
+  RqiStep(const TridiagonalPencil& p, double kmax, double mmax)
+      : m_p(p), m_n(p.size()), m_kmax(kmax), m_mmax(mmax) {
+    t_work.reserve(m_n * B);
   }
 
-  void run(std::vector<double>* const* xs, int min_steps, int max_steps, double residual_tol) {
+  /// rho[b]: the quotient of xs[b] (NaN: computed here); on return the quotient of the new
+  /// vector, and res[b] its residual (when `residual`), or unchanged with ok[b] = false when
+  /// the step gave a zero or non-finite vector (xs[b] is then left as it was).
+  void run(std::vector<double>* const* xs, double* rho, bool residual, double* res, bool* ok) {
+    double* const x = t_work.x.data();
     for (std::size_t j = 0; j < m_n; ++j)
-      for (std::size_t b = 0; b < B; ++b) m_x[j * B + b] = (*xs[b])[j];
-    bool active[B];
-    double previous[B], rho[B];
-    for (std::size_t b = 0; b < B; ++b) {
-      active[b] = true;
-      previous[b] = std::numeric_limits<double>::quiet_NaN();
+      for (std::size_t b = 0; b < B; ++b) x[j * B + b] = (*xs[b])[j];
+    bool known = true;
+    for (std::size_t b = 0; b < B; ++b) known = known && !std::isnan(rho[b]);
+    if (!known) {
+      double q[B];
+      quotients(x, q);
+      for (std::size_t b = 0; b < B; ++b)
+        if (std::isnan(rho[b])) rho[b] = q[b];
     }
-    quotients(m_x.data(), rho);
-    for (int it = 0; it < max_steps; ++it) {
-      bool any = false;
-      for (std::size_t b = 0; b < B; ++b) {
-        if (!std::isfinite(rho[b])) active[b] = false;
-        // Converged once the quotient stops moving (cubic convergence: another step would
-        // change nothing).
-        if (it >= min_steps &&
-            std::abs(rho[b] - previous[b]) <= 1e-14 * std::abs(rho[b]) + 4 * eps * m_scale)
-          active[b] = false;
-        previous[b] = rho[b];
-        any = any || active[b];
-      }
-      if (!any) break;
-      double shift[B];
-      for (std::size_t b = 0; b < B; ++b) shift[b] = active[b] ? rho[b] : 0.0;
-      step(shift, active, rho);
-      if (residual_tol > 0) {
-        double res[B];
-        residuals(rho, res);
-        for (std::size_t b = 0; b < B; ++b)
-          if (res[b] <= residual_tol) active[b] = false;
-      }
-    }
+    double shift[B];
+    for (std::size_t b = 0; b < B; ++b) shift[b] = std::isfinite(rho[b]) ? rho[b] : 0.0;
+    step(shift, rho, ok);
+    if (residual) residuals(rho, res);
     for (std::size_t j = 0; j < m_n; ++j)
-      for (std::size_t b = 0; b < B; ++b) (*xs[b])[j] = m_x[j * B + b];
+      for (std::size_t b = 0; b < B; ++b)
+        if (ok[b]) (*xs[b])[j] = x[j * B + b];
   }
 
 private:
@@ -157,7 +159,7 @@ private:
   /// ||K x - rho M x|| / (||K x|| + |rho| ||M x||) per column.
   void residuals(const double* rho, double* res) const {
     double r2[B] = {}, k2[B] = {}, m2[B] = {};
-    for_products(m_x.data(), [&](std::size_t b, double, double kx, double mx) {
+    for_products(t_work.x.data(), [&](std::size_t b, double, double kx, double mx) {
       const double e = kx - rho[b] * mx;
       r2[b] += e * e;
       k2[b] += kx * kx;
@@ -169,14 +171,14 @@ private:
     }
   }
 
-  /// One step at shifts s: y = (K - s M)^{-1} M x; active columns take x = y / max|y| and
-  /// rho = its quotient.
-  void step(const double* s, const bool* active, double* rho) {
+  /// y = (K - s M)^{-1} M x per column; usable columns take x = y / max|y| and rho = its
+  /// quotient (ok[b] says which).
+  void step(const double* s, double* rho, bool* ok) {
     const std::size_t n = m_n;
-    double* const x = m_x.data();
-    double* const y = m_y.data();
-    double* const lv = m_l.data();
-    double* const dv = m_dinv.data();
+    double* const x = t_work.x.data();
+    double* const y = t_work.y.data();
+    double* const lv = t_work.l.data();
+    double* const dv = t_work.dinv.data();
     double floor[B], l_prev[B], y_prev[B];
     for (std::size_t b = 0; b < B; ++b) {
       floor[b] = (m_kmax + std::abs(s[b]) * m_mmax) * eps * eps;
@@ -213,22 +215,19 @@ private:
     // (3) new x and its quotient.
     double q[B];
     quotients(y, q);
-    bool usable[B];
     double inv[B];
     for (std::size_t b = 0; b < B; ++b) {
-      usable[b] = active[b] && big[b] > 0 && std::isfinite(big[b]); // else keep x
-      inv[b] = usable[b] ? 1.0 / big[b] : 0.0;
-      if (usable[b]) rho[b] = q[b];
+      ok[b] = big[b] > 0 && std::isfinite(big[b]) && std::isfinite(q[b]);
+      inv[b] = ok[b] ? 1.0 / big[b] : 0.0;
+      if (ok[b]) rho[b] = q[b];
     }
     for (std::size_t j = 0; j < n; ++j)
-      for (std::size_t b = 0; b < B; ++b)
-        if (usable[b]) x[j * B + b] = y[j * B + b] * inv[b];
+      for (std::size_t b = 0; b < B; ++b) x[j * B + b] = y[j * B + b] * inv[b];
   }
 
   const TridiagonalPencil& m_p;
   std::size_t m_n;
-  double m_scale, m_kmax = 0, m_mmax = 0;
-  std::vector<double> m_x, m_y, m_l, m_dinv;
+  double m_kmax, m_mmax;
 };
 
 } // namespace
@@ -245,14 +244,52 @@ void rayleigh_iterate(const TridiagonalPencil& p, std::vector<std::vector<double
                       int min_steps, int max_steps, double scale, double residual_tol) {
   for (const auto& x : xs)
     if (x.size() != p.size()) throw UsageError("Rayleigh quotient iteration: vector of the wrong size");
-  for_chunks(xs.size(), [&](std::size_t first, std::size_t width) {
-    std::vector<std::vector<double>*> ptr;
-    for (std::size_t b = 0; b < width; ++b) ptr.push_back(&xs[first + b]);
-    with_width(width, [&](auto w) {
-      RqiBlock<decltype(w)::value> block(p, scale);
-      block.run(ptr.data(), min_steps, max_steps, residual_tol);
+  double kmax = 0, mmax = 0;
+  for (std::size_t j = 0; j < p.size(); ++j) {
+    kmax = std::max(kmax, std::abs(p.k_diag[j]));
+    mmax = std::max(mmax, p.m_diag[j]);
+  }
+  const std::size_t count = xs.size();
+  const double nan = std::numeric_limits<double>::quiet_NaN();
+  std::vector<double> rho(count, nan), previous(count, nan), res(count, nan);
+  std::vector<char> active(count, 1);
+  for (int it = 0; it < max_steps; ++it) {
+    // Each round steps only the vectors still active, in blocks of up to max_width.
+    std::vector<std::size_t> todo;
+    for (std::size_t i = 0; i < count; ++i) {
+      if (!active[i]) continue;
+      // Converged once the quotient stops moving (cubic convergence: another step would change
+      // nothing) or the residual is small enough.
+      if (it >= min_steps &&
+          std::abs(rho[i] - previous[i]) <= 1e-14 * std::abs(rho[i]) + 4 * eps * scale)
+        active[i] = 0;
+      if (residual_tol > 0 && res[i] <= residual_tol) active[i] = 0;
+      previous[i] = rho[i];
+      if (active[i]) todo.push_back(i);
+    }
+    if (todo.empty()) break;
+    for_chunks(todo.size(), [&](std::size_t first, std::size_t width) {
+      std::vector<double>* ptr[max_width];
+      double r[max_width], e[max_width];
+      bool ok[max_width];
+      for (std::size_t b = 0; b < width; ++b) {
+        ptr[b] = &xs[todo[first + b]];
+        r[b] = rho[todo[first + b]];
+      }
+      with_width(width, [&](auto w) {
+        RqiStep<decltype(w)::value>(p, kmax, mmax).run(ptr, r, residual_tol > 0, e, ok);
+      });
+      for (std::size_t b = 0; b < width; ++b) {
+        const std::size_t i = todo[first + b];
+        if (!ok[b]) {
+          active[i] = 0; // zero or non-finite: keep the last good vector
+          continue;
+        }
+        rho[i] = r[b];
+        res[i] = e[b];
+      }
     });
-  });
+  }
 }
 
 MeshLevel coarsen(const std::vector<std::size_t>& fn, bool fix_first,

@@ -7,9 +7,12 @@
 #include "radmode/error.hpp"
 
 #include <algorithm>
+#include <array>
 #include <cerrno>
+#include <cfloat>
 #include <charconv>
 #include <cmath>
+#include <cstdint>
 #include <cstdio>
 #include <cstdlib>
 #include <cstring>
@@ -115,11 +118,155 @@ std::string_view trim(std::string_view s) {
   return s.substr(b, e - b + 1);
 }
 
+// --- Fast decimal-to-double conversion ----------------------------------------------------
+//
+// A table number of up to 15 significant digits with a moderate exponent is converted in the
+// same pass that finds the end of the field: w <= 2^53 and 10^|k| <= 10^22 are exact doubles,
+// so one IEEE multiplication or division gives the correctly rounded w * 10^k (Clinger 1990,
+// "How to read floating point numbers accurately", PLDI). Every other number goes to
+// std::from_chars, so the result is always the double std::from_chars gives.
+
+bool is_digit(char c) { return static_cast<unsigned char>(c - '0') < 10; }
+
+// Eight digits at a time from one 64-bit load, on little-endian machines (first character in
+// the lowest byte); elsewhere one digit at a time.
+#if defined(__BYTE_ORDER__) && defined(__ORDER_LITTLE_ENDIAN__)
+constexpr bool eight_at_a_time = __BYTE_ORDER__ == __ORDER_LITTLE_ENDIAN__;
+#else
+constexpr bool eight_at_a_time = false;
+#endif
+
+std::uint64_t load8(const char* p) {
+  std::uint64_t v = 0;
+  std::memcpy(&v, p, sizeof v);
+  return v;
+}
+
+/// Every byte in '0'...'9': high nibble 3, and adding 6 to the low nibble does not carry.
+bool eight_digits(std::uint64_t v) {
+  constexpr std::uint64_t high = 0xf0f0f0f0f0f0f0f0u, threes = 0x3030303030303030u;
+  return (v & high) == threes && ((v + 0x0606060606060606u) & high) == threes;
+}
+
+/// The value of eight digit bytes: neighbouring digits, then pairs, then quadruples combined
+/// in place (no lane overflows: 99, 9999 and 99999999 fit their 8-, 16- and 32-bit lanes).
+std::uint64_t eight_digit_value(std::uint64_t v) {
+  v -= 0x3030303030303030u;
+  v = (v * 10 + (v >> 8)) & 0x00ff00ff00ff00ffu;
+  v = (v * 100 + (v >> 16)) & 0x0000ffff0000ffffu;
+  return (v * 10000 + (v >> 32)) & 0xffffffffu;
+}
+
+constexpr int max_digits = 19; // 10^19 - 1 < 2^64
+
+/// Appends the digits at p to w; zeros before the first significant digit are skipped.
+/// `place` counts every digit read, `digits` the significant ones (those beyond max_digits
+/// are read but not added; the caller then leaves the number to std::from_chars).
+inline void read_digits(const char*& p, const char* end, std::uint64_t& w, int& digits,
+                        int& place) {
+  const char* start = p;
+  if (digits == 0)
+    while (p != end && *p == '0') ++p;
+  if (eight_at_a_time) {
+    while (end - p >= 8) {
+      const std::uint64_t v = load8(p);
+      if (!eight_digits(v)) break;
+      if (digits + 8 <= max_digits) w = w * 100000000u + eight_digit_value(v);
+      digits += 8;
+      p += 8;
+    }
+  }
+  for (; p != end && is_digit(*p); ++p)
+    if (++digits <= max_digits) w = w * 10 + static_cast<std::uint64_t>(*p - '0');
+  place += static_cast<int>(p - start);
+}
+
+/// w * 10^k exactly rounded when both factors are exact doubles (w <= 2^53, possibly after
+/// moving powers of ten from 10^k into w while w stays <= 2^53); false otherwise.
+bool exact_product(std::uint64_t w, int k, bool negative, double& out) {
+  static constexpr double pow10[23] = {1e0,  1e1,  1e2,  1e3,  1e4,  1e5,  1e6,  1e7,
+                                       1e8,  1e9,  1e10, 1e11, 1e12, 1e13, 1e14, 1e15,
+                                       1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22};
+  if (w == 0) {
+    out = negative ? -0.0 : 0.0;
+    return true;
+  }
+#if FLT_EVAL_METHOD == 0 // double arithmetic rounds to double (no wider intermediates)
+  constexpr std::uint64_t two53 = std::uint64_t{1} << 53;
+  if (w > two53 || k < -22) return false;
+  for (; k > 22; --k) {
+    if (w > two53 / 10) return false;
+    w *= 10;
+  }
+  const double x = static_cast<double>(w);
+  const double v = k < 0 ? x / pow10[-k] : x * pow10[k];
+  out = negative ? -v : v;
+  return true;
+#else
+  return false;
+#endif
+}
+
+enum class Scan {
+  converted, ///< `out` holds the value
+  standard,  ///< a decimal number for std::from_chars (sign and 'e' exponent only)
+  other,     ///< anything else: Fortran exponent, no digits, inf/nan text (full parse)
+};
+
+/// Reads the longest prefix of [p, end) of the form [+-]digits[.digits][(e|E|d|D)[+-]digits]
+/// (at least one mantissa digit); `stop` is set to its end.
+Scan scan_number(const char* p, const char* end, const char*& stop, double& out) {
+  bool negative = false;
+  if (p != end && (*p == '-' || *p == '+')) {
+    negative = *p == '-';
+    ++p;
+  }
+  std::uint64_t w = 0;
+  int digits = 0; // significant digits
+  int place = 0;  // digits read
+  read_digits(p, end, w, digits, place);
+  int k = 0; // decimal exponent of w's last digit
+  if (p != end && *p == '.') {
+    ++p;
+    const int before_point = place;
+    read_digits(p, end, w, digits, place);
+    k = before_point - place;
+  }
+  stop = p;
+  if (place == 0) return Scan::other;
+  Scan plain = Scan::standard;
+  if (p != end && (*p == 'e' || *p == 'E' || *p == 'd' || *p == 'D')) {
+    if (*p == 'd' || *p == 'D') plain = Scan::other;
+    ++p;
+    bool exp_negative = false;
+    if (p != end && (*p == '-' || *p == '+')) {
+      exp_negative = *p == '-';
+      ++p;
+    }
+    if (p == end || !is_digit(*p)) return Scan::other; // "1e" is not a number
+    int e = 0;
+    for (; p != end && is_digit(*p); ++p)
+      if (e < 100000) e = e * 10 + (*p - '0');
+    k += exp_negative ? -e : e;
+    stop = p;
+  }
+  if (digits <= max_digits && exact_product(w, k, negative, out))
+    return Scan::converted;
+  return plain;
+}
+
 // --- Lines and fields ---------------------------------------------------------------------
 
-bool is_blank_char(char c) {
-  return c == ' ' || c == '\t' || c == '\r' || c == '\v' || c == '\f' || c == ',';
-}
+/// Field separators: whitespace other than the line end, and commas.
+struct BlankTable {
+  bool blank[256] = {};
+  constexpr BlankTable() {
+    for (const char c : {' ', '\t', '\r', '\v', '\f', ','}) blank[static_cast<unsigned char>(c)] = true;
+  }
+};
+constexpr BlankTable blank_table;
+
+bool is_blank_char(char c) { return blank_table.blank[static_cast<unsigned char>(c)]; }
 
 /// Splits a line into fields (separators: whitespace and commas; `#` ends the line).
 class FieldCursor {
@@ -199,6 +346,10 @@ private:
   void set_up_native(std::string_view header);
   void set_up_mapped(std::string_view first, bool& first_is_data);
   void read_row(std::string_view line);
+  /// Converts the field starting at `begin` for `target` and appends it; returns the end of
+  /// the field.
+  const char* store(const Target& target, std::size_t column, const char* begin,
+                    const char* line_end);
   StellarModel assemble();
 
   std::string_view m_text;
@@ -356,17 +507,32 @@ void TableReader::set_up_mapped(std::string_view first, bool& first_is_data) {
   }
 }
 
-void TableReader::read_row(std::string_view line) {
-  FieldCursor cur(line);
-  std::string_view field;
-  std::size_t column = 0;
-  while (cur.next(field)) {
-    ++column;
-    if (column > m_targets.size()) break;
-    const Target& target = m_targets[column - 1];
-    if (target.slot == ignored) continue;
-    Slot& slot = m_slots[target.slot];
+/// End of the field that starts at p (the next blank, comma or '#', or the end).
+const char* field_end(const char* p, const char* end) {
+  while (p < end && !is_blank_char(*p) && *p != '#') ++p;
+  return p;
+}
+
+const char* TableReader::store(const Target& target, std::size_t column, const char* begin,
+                               const char* line_end) {
+  // Fast path: a plain decimal number that ends the field, converted in the same pass, or
+  // handed to std::from_chars with its end already known.
+  double v = 0.0;
+  const char* stop = nullptr;
+  const Scan scan = scan_number(begin, line_end, stop, v);
+  const bool field_ends = stop == line_end || is_blank_char(*stop) || *stop == '#';
+  bool done = field_ends && scan == Scan::converted;
+  if (field_ends && scan == Scan::standard) {
+    // from_chars takes no leading '+'.
+    const char* first = *begin == '+' ? begin + 1 : begin;
+    const auto res = std::from_chars(first, stop, v);
+    done = res.ec == std::errc() && res.ptr == stop && std::isfinite(v);
+  }
+  if (!done) {
+    stop = field_end(begin, line_end);
+    const std::string_view field(begin, static_cast<std::size_t>(stop - begin));
     const auto value = parse_number(field);
+    Slot& slot = m_slots[target.slot];
     if (!value)
       throw InputError(ErrorKind::bad_number, at(m_line_no, column, slot.name),
                        "expected a number, found '" + std::string(field.substr(0, 40)) +
@@ -375,23 +541,60 @@ void TableReader::read_row(std::string_view line) {
       throw InputError(ErrorKind::not_finite, at(m_line_no, column, slot.name),
                        "expected a finite number, found '" + std::string(field.substr(0, 40)) +
                            "'");
-    double v = *value;
+    v = *value;
+  }
+  if (target.unit.log10 || target.unit.factor != 1.0) {
     if (target.unit.log10) v = std::pow(10.0, v);
     v *= target.unit.factor;
-    if (!std::isfinite(v))
-      throw InputError(ErrorKind::not_finite, at(m_line_no, column, slot.name),
+    if (!std::isfinite(v)) {
+      const std::string_view field(begin,
+                                   static_cast<std::size_t>(field_end(begin, line_end) - begin));
+      throw InputError(ErrorKind::not_finite, at(m_line_no, column, m_slots[target.slot].name),
                        "'" + std::string(field.substr(0, 40)) +
                            "' overflows a double after unit conversion");
-    slot.values.push_back(v);
+    }
   }
-  if (column != m_targets.size()) {
+  m_slots[target.slot].values.push_back(v);
+  return stop;
+}
+
+void TableReader::read_row(std::string_view line) {
+  if (m_lines.empty()) {
+    // Room for as many more rows as fit the rest of the text at this row's length (the
+    // arrays still grow when later rows are shorter).
+    const std::size_t rest = m_text.size() - std::min(m_pos, m_text.size());
+    const std::size_t rows = rest / (line.size() + 1) + 1;
+    for (auto& s : m_slots) s.values.reserve(rows);
+    m_lines.reserve(rows);
+  }
+  const char* p = line.data();
+  const char* const end = p + line.size();
+  const std::size_t n_targets = m_targets.size();
+  std::size_t column = 0;
+  while (true) {
+    while (p < end && is_blank_char(*p)) ++p;
+    if (p == end || *p == '#') break;
+    if (++column > n_targets) break;
+    const Target& target = m_targets[column - 1];
+    if (target.slot == ignored) {
+      p = field_end(p, end);
+      continue;
+    }
+    p = store(target, column, p, end);
+  }
+  if (column != n_targets) {
     // Count the remaining fields for the message.
-    while (cur.next(field)) ++column;
+    if (column > n_targets) {
+      FieldCursor cur(std::string_view(p, static_cast<std::size_t>(end - p)));
+      std::string_view field;
+      cur.next(field); // the field counted above
+      while (cur.next(field)) ++column;
+    }
     const std::string ref = m_header_line != 0
                                 ? "the header (line " + std::to_string(m_header_line) + ")"
                                 : "the first row";
     throw InputError(ErrorKind::bad_format, at(m_line_no),
-                     "expected " + std::to_string(m_targets.size()) + " fields as in " + ref +
+                     "expected " + std::to_string(n_targets) + " fields as in " + ref +
                          ", found " + std::to_string(column));
   }
   m_lines.push_back(m_line_no);
@@ -404,11 +607,6 @@ StellarModel TableReader::read() {
   std::string_view line;
   for (std::size_t i = 0; i < m_options.skip_lines; ++i)
     if (!next_line(line)) break;
-
-  // Upper bound on the rows, to reserve once.
-  const std::string_view rest = m_text.substr(std::min(m_pos, m_text.size()));
-  const std::size_t rows_estimate =
-      static_cast<std::size_t>(std::count(rest.begin(), rest.end(), '\n')) + 1;
 
   bool set_up = false;
   while (next_line(line)) {
@@ -434,8 +632,6 @@ StellarModel TableReader::read() {
         set_up_mapped(line, first_is_data);
       else
         set_up_native(line);
-      for (auto& s : m_slots) s.values.reserve(rows_estimate);
-      m_lines.reserve(rows_estimate);
       if (!first_is_data) continue;
     }
     read_row(line);
@@ -491,6 +687,13 @@ StellarModel TableReader::assemble() {
 
 std::optional<double> parse_number(std::string_view token) noexcept {
   if (token.empty()) return std::nullopt;
+  {
+    double value = 0.0;
+    const char* last = token.data() + token.size();
+    const char* stop = nullptr;
+    if (scan_number(token.data(), last, stop, value) == Scan::converted && stop == last)
+      return value;
+  }
   if (token[0] == '+') {
     token.remove_prefix(1);
     if (token.empty() || token[0] == '-' || token[0] == '+') return std::nullopt;

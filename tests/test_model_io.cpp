@@ -10,7 +10,10 @@
 #include <doctest/doctest.h>
 
 #include <cmath>
+#include <cstdint>
 #include <cstdio>
+#include <cstdlib>
+#include <cstring>
 #include <string>
 #include <vector>
 
@@ -465,5 +468,188 @@ TEST_CASE("write then read gives back the same model") {
       CHECK(model.metadata == back.metadata);
       CHECK(back.source == path);
     }
+  }
+}
+
+namespace {
+
+/// The C library's conversion (strtod, "C" locale) of a token in the reader's grammar, as the
+/// outside reference: Fortran 'D' exponents become 'e' first.
+double strtod_reference(std::string token) {
+  for (auto& c : token)
+    if (c == 'd' || c == 'D') c = 'e';
+  return std::strtod(token.c_str(), nullptr);
+}
+
+std::uint64_t bits_of(double x) {
+  std::uint64_t b = 0;
+  std::memcpy(&b, &x, sizeof b);
+  return b;
+}
+
+/// Tokens covering the shortcut of the reader (<= 15 digits, moderate exponents) and the
+/// general path (16 to 25 digits, large and tiny exponents, subnormals, ties), with signs,
+/// leading zeros, Fortran exponents and points in every place.
+std::vector<std::string> number_tokens() {
+  std::vector<std::string> out = {
+      "0", "-0", "+0", "0.0", "-0.0e5", "0e99999", "00012.5000", "000.000125", "1.", ".5", "-.5",
+      "9007199254740992", "9007199254740993", "9007199254740995", "90071992547409930e-1",
+      "4503599627370497.5", "1e22", "1e23", "123456789012345e10", "8.98846567431158e307",
+      "1.7976931348623157e308", "2.2250738585072014e-308", "2.2250738585072011e-308",
+      "4.9406564584124654e-324", "2.4703282292062328e-324", "1e-320", "1.0D+05", "-2.5d-3",
+      "+6.02214076E+23", "0.30000000000000004", "1234567890123456789",
+      "12345678901234567890", "1.2345678901234567890123e-7",
+      "0.000000000000000000000000000000000000001", "1e-22", "1e-23"};
+  char buf[400]; // %.3f of 1e308 has 313 characters
+  std::uint64_t state = 0x2545f4914f6cdd1dULL; // xorshift64 (Marsaglia 2003)
+  auto next = [&state] {
+    state ^= state << 13;
+    state ^= state >> 7;
+    state ^= state << 17;
+    return state;
+  };
+  // Eight printf forms: %.17g %.16e %.15g %.8e %.6g %.3f %.10E %.1e
+  auto print = [&buf](int form, double v) {
+    const int digits[8] = {17, 16, 15, 8, 6, 3, 10, 1};
+    const int d = digits[form];
+    switch (form) {
+    case 0: case 2: case 4: std::snprintf(buf, sizeof buf, "%.*g", d, v); break;
+    case 5: std::snprintf(buf, sizeof buf, "%.*f", d, v); break;
+    case 6: std::snprintf(buf, sizeof buf, "%.*E", d, v); break;
+    default: std::snprintf(buf, sizeof buf, "%.*e", d, v); break;
+    }
+    return std::string(buf);
+  };
+  for (int i = 0; i < 20000; ++i) {
+    // A double spread over the whole range (random bits, finite only).
+    double x = 0;
+    const std::uint64_t b = next();
+    std::memcpy(&x, &b, sizeof x);
+    if (!std::isfinite(x)) continue;
+    out.push_back(print(i % 8, x));
+    // Moderate magnitudes as in stellar tables.
+    const double y = std::ldexp(double(next() >> 11), -53) * std::pow(10.0, int(next() % 80) - 40);
+    out.push_back(print((i + 3) % 8, y));
+    // Random digit strings: 1 to 25 digits, a point somewhere, an exponent sometimes.
+    std::string s = (next() % 3 == 0) ? "-" : "";
+    const int n = 1 + int(next() % 25);
+    const int point = int(next() % std::uint64_t(n + 1));
+    for (int k = 0; k < n; ++k) {
+      if (k == point) s += '.';
+      s += char('0' + next() % 10);
+    }
+    if (next() % 2 == 0) s += (next() % 4 == 0 ? "D" : "e") + std::to_string(int(next() % 90) - 45);
+    out.push_back(s);
+  }
+  return out;
+}
+
+} // namespace
+
+TEST_CASE("parse_number gives the C library's double, bit for bit") {
+  // Reference: strtod (ISO C, correctly rounded in glibc); every double bit and the sign of
+  // zero must agree, for the shortcut and for the general path.
+  std::size_t checked = 0;
+  for (const auto& token : number_tokens()) {
+    const auto value = parse_number(token);
+    REQUIRE_MESSAGE(value, token);
+    const double expected = strtod_reference(token);
+    if (bits_of(*value) != bits_of(expected))
+      FAIL_CHECK(token << ": got " << num(*value) << ", strtod " << num(expected));
+    ++checked;
+  }
+  CHECK(checked > 59000);
+  // Text the shortcut must not take (the general path rejects all of it).
+  for (const char* bad : {"-", "+.", ".", "1e+", "1e-", "1d", "1.5e5.5", "--1", "+-1", "1+",
+                          "1e5e5", "1_000", "0x1p3", "infx", "NaNx", "1.5 "})
+    CHECK_MESSAGE(!parse_number(bad), bad);
+}
+
+TEST_CASE("table rows: every field form gives the C library's double") {
+  // Every token of number_tokens() placed in the P column of a valid table (other columns
+  // fixed), rows separated by any mix of blanks, tabs, commas, CRLF and inline comments.
+  const auto tokens = number_tokens();
+  const char* separators[] = {" ", "\t", ",", " , ", "\t\t", "  "};
+  std::string t = "r m P rho Gamma1\r\n";
+  std::vector<double> expected;
+  std::size_t i = 0;
+  for (const auto& token : tokens) {
+    const char* sep = separators[i % 6];
+    const double p = std::abs(strtod_reference(token));
+    if (!(p <= 1e300)) continue; // keep the table valid (no inf)
+    t += std::to_string(i) + sep + std::to_string(i) + sep + (token[0] == '-' ? token.substr(1) : token) +
+         sep + "1.5" + sep + "1.6";
+    t += (i % 5 == 0) ? "# note\r\n" : (i % 7 == 0 ? "\r\n" : "\n");
+    expected.push_back(p);
+    ++i;
+  }
+  t.pop_back(); // no newline after the last row
+  const auto model = parse_model(t, "forms.txt");
+  REQUIRE(model.P.size() == expected.size());
+  std::size_t mismatches = 0;
+  for (std::size_t k = 0; k < expected.size(); ++k)
+    if (bits_of(model.P[k]) != bits_of(expected[k])) ++mismatches;
+  CHECK(mismatches == 0);
+  CHECK(model.line.back() == expected.size() + 1);
+}
+
+TEST_CASE("table rows: long lines, missing final newline, junk after a number") {
+  SUBCASE("a 300-digit number and 100,000 blanks in a row") {
+    auto lines = good_lines();
+    lines[3] = "1 " + std::string(100000, ' ') + "1 0." + std::string(297, '0') + "99e300\t1.5 1.6";
+    const auto model = parse_model(join(lines), "long.txt");
+    CHECK(model.P[1] == 990.0); // 0.(297 zeros)99 = 99e-299, times 1e300
+    CHECK(model.line[1] == 4);
+  }
+  SUBCASE("last row without a newline, with a trailing comment and CR") {
+    std::string t = join(good_lines());
+    t.pop_back();
+    t += " # end\r";
+    const auto model = parse_model(t, "tail.txt");
+    CHECK(model.size() == 12);
+    CHECK(model.gamma1.back() == 1.6);
+  }
+  SUBCASE("junk glued to a number is a bad number, naming line and column") {
+    for (const char* junk : {"1.5x", "1.5e", "1.5e+", "1.5.5", "1.5-", "1.5D", "+-1.5", "1.5e5x",
+                             "0x15", "1.5\v9"}) {
+      auto lines = good_lines();
+      lines[6] = std::string("4 16 96 ") + junk + " 1.6";
+      const auto text = join(lines);
+      if (std::string(junk) == "1.5\v9") {
+        // A vertical tab separates fields: six fields instead of five.
+        CHECK(parse_error(text).kind() == ErrorKind::bad_format);
+        continue;
+      }
+      const auto e = parse_error(text);
+      CHECK_MESSAGE(e.kind() == ErrorKind::bad_number, junk);
+      CHECK_MESSAGE(contains(e.what(), "bad.txt:7: column 4 (rho): expected a number"), junk);
+    }
+  }
+  SUBCASE("number directly followed by a comment") {
+    auto lines = good_lines();
+    lines[6] = "4 16 96 1.25#comment";
+    lines[7] = "5 25 95 1.5,1.6#";
+    auto e = parse_error(join(lines));
+    CHECK(e.kind() == ErrorKind::bad_format); // four fields in line 7
+    CHECK(contains(e.what(), "bad.txt:7: expected 5 fields as in the header (line 2), found 4"));
+    lines[6] = "4 16 96 1.25 1.5#comment";
+    const auto model = parse_model(join(lines), "c.txt");
+    CHECK(model.rho[4] == 1.25);
+    CHECK(model.gamma1[4] == 1.5);
+  }
+  SUBCASE("inf and nan spellings are rejected as not finite") {
+    for (const char* word : {"inf", "-inf", "+inf", "infinity", "INF", "nan", "NaN", "-nan"}) {
+      auto lines = good_lines();
+      lines[8] = std::string("6 36 94 1.5 ") + word;
+      const auto e = parse_error(join(lines));
+      CHECK_MESSAGE(e.kind() == ErrorKind::not_finite, word);
+      CHECK_MESSAGE(contains(e.what(), "bad.txt:9: column 5 (Gamma1)"), word);
+    }
+  }
+  SUBCASE("too many fields are counted in the message") {
+    auto lines = good_lines();
+    lines[9] = "7 49 93 1.5 1.6 8 9,10";
+    const auto e = parse_error(join(lines));
+    CHECK(contains(e.what(), "bad.txt:10: expected 5 fields as in the header (line 2), found 8"));
   }
 }

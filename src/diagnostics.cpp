@@ -25,10 +25,13 @@ void require_positive(const char* name, double v) {
 }
 
 /// Second-order three-point derivative of y with respect to x at the middle point of a
-/// non-uniform stencil (x0 < x1 < x2).
+/// non-uniform stencil (x0 < x1 < x2), h1 = x1 - x0, h2 = x2 - x1:
+///   y'(x1) = [h1^2 (y2 - y1) + h2^2 (y1 - y0)] / [h1 h2 (h1 + h2)],
+/// the weights -h2/(h1 (h1+h2)), (h2-h1)/(h1 h2), h1/(h2 (h1+h2)) of y0, y1, y2 over a common
+/// denominator (one division; the differences of y keep the cancellation small).
 double derivative3(double x0, double x1, double x2, double y0, double y1, double y2) {
   const double h1 = x1 - x0, h2 = x2 - x1;
-  return -h2 / (h1 * (h1 + h2)) * y0 + (h2 - h1) / (h1 * h2) * y1 + h1 / (h2 * (h1 + h2)) * y2;
+  return (h1 * h1 * (y2 - y1) + h2 * h2 * (y1 - y0)) / (h1 * h2 * (h1 + h2));
 }
 
 /// Index of the nearest point before i whose x differs from x[i] (or npos).
@@ -49,52 +52,100 @@ std::size_t distinct_after(const std::vector<double>& x, std::size_t i) {
 /// gives such differences to 1 %.
 constexpr double hse_min_relative_change = 1e-4;
 
+/// Moves a stencil end from `start` towards `limit` (below it when `down`, else above) while
+/// too_close says the point is not resolved and the limit is not reached; returns where it
+/// stops and sets `still_close` to too_close there. With `monotone` (once too_close is false it
+/// stays false further out, as when P and m are monotonic along the table), the stop is found
+/// by galloping and bisection in O(log n) evaluations instead of one step at a time; the stop
+/// is the same point.
+template <bool down, class TooClose>
+std::size_t widen(std::size_t start, std::size_t limit, TooClose too_close, bool monotone,
+                  bool& still_close) {
+  auto move = [](std::size_t j, std::size_t k) { return down ? j - k : j + k; };
+  auto distance = [](std::size_t from, std::size_t to) { return down ? from - to : to - from; };
+  std::size_t j = start;
+  still_close = too_close(j);
+  if (!monotone) {
+    while (still_close && j != limit) still_close = too_close(j = move(j, 1));
+    return j;
+  }
+  if (j == limit || !still_close) return j;
+  std::size_t close = j, far = limit; // too_close(close); !too_close(far) once found
+  for (std::size_t step = 1;; step *= 2) {
+    if (step >= distance(close, limit)) {
+      still_close = too_close(limit);
+      if (still_close) return limit;
+      far = limit;
+      break;
+    }
+    far = move(close, step);
+    if (!too_close(far)) break;
+    close = far;
+  }
+  while (distance(close, far) > 1) {
+    const std::size_t mid = move(close, distance(close, far) / 2);
+    (too_close(mid) ? close : far) = mid;
+  }
+  still_close = false;
+  return far;
+}
+
 /// Relative HSE residual at point i with the derivative of y (the pressure) with respect to x
 /// over neighbours a < i < b, against `target` (the exact dy/dx in equilibrium, < 0). The
 /// neighbours start as the nearest points with distinct x and move outwards while
 /// `too_close(j)` says the difference between points j and i is not resolved by the table's
 /// digits (near the centre of a finely meshed model P hardly changes between points; in the
-/// envelope m does not). NaN when there is no such stencil or `resolved(a, b)` says the
-/// stencil cannot resolve the profile.
+/// envelope m does not); `monotone` as in widen. NaN when there is no such stencil or
+/// `resolved(a, b)` says the stencil cannot resolve the profile.
 template <class TooClose, class Resolved>
 double residual_form(const std::vector<double>& x, const std::vector<double>& y, std::size_t i,
-                     double target, TooClose too_close, Resolved resolved) {
+                     double target, TooClose too_close, bool monotone, Resolved resolved) {
   std::size_t a = distinct_before(x, i), b = distinct_after(x, i);
   if (a == npos || b == npos || !(target < 0.0)) return std::numeric_limits<double>::quiet_NaN();
-  while (too_close(a) && a > 0) --a;
-  while (too_close(b) && b + 1 < y.size()) ++b;
-  if (too_close(a) || too_close(b) || x[a] == x[i] || x[b] == x[i] || !resolved(a, b))
+  bool a_close = false, b_close = false;
+  a = widen<true>(a, 0, too_close, monotone, a_close);
+  if (a_close) return std::numeric_limits<double>::quiet_NaN();
+  b = widen<false>(b, y.size() - 1, too_close, monotone, b_close);
+  if (b_close || x[a] == x[i] || x[b] == x[i] || !resolved(a, b))
     return std::numeric_limits<double>::quiet_NaN();
   const double d = derivative3(x[a], x[i], x[b], y[a], y[i], y[b]);
   return std::abs(d - target) / std::abs(target);
 }
 
-/// P / rho [erg g^-1], taken as 0 at a zero-pressure surface point where rho = 0 too (the
-/// limit for a polytrope, where P/rho is proportional to theta).
-double p_over_rho(const StellarModel& model, std::size_t i) {
-  return model.P[i] == 0.0 ? 0.0 : model.P[i] / model.rho[i];
-}
-
-/// b G^2 M^3 / R^2 [g cm^4 s^-4] of physics.md section 5, for the
-/// specific internal energy u [erg g^-1] at each point; trapezoid in m on the m column.
-double pn_integral(const StellarModel& model, const std::vector<double>& u) {
+/// b G^2 M^3 / R^2 [g cm^4 s^-4] of physics.md section 5, for two choices of the specific
+/// internal energy u [erg g^-1] at each point (ua, ub) in one pass; trapezoid in m on the m
+/// column. Per point, computed once: gm_r = G m / r, g_r = G / r (both 0 at r = 0) and
+/// p_rho = P / rho.
+struct PnIntegrals {
+  double a = 0, b = 0;
+};
+PnIntegrals pn_integrals(const StellarModel& model, const std::vector<double>& ua,
+                         const std::vector<double>& ub, const std::vector<double>& gm_r,
+                         const std::vector<double>& g_r, const std::vector<double>& p_rho) {
   const std::size_t n = model.size();
-  double U = 0, Omega = 0, total = 0;
-  double prev_f = 0;
-  auto gm_over_r = [&](std::size_t i) {
-    return model.r[i] > 0.0 ? G * model.m[i] / model.r[i] : 0.0;
-  };
+  double Ua = 0, Ub = 0, Omega = 0;
+  double prev_fa = 0, prev_fb = 0;
+  PnIntegrals total;
   for (std::size_t i = 0; i < n; ++i) {
+    double dm = 0;
     if (i > 0) {
-      const double dm = model.m[i] - model.m[i - 1];
-      U += 0.5 * (u[i] + u[i - 1]) * dm;
-      Omega += 0.5 * (gm_over_r(i) + gm_over_r(i - 1)) * dm;
+      dm = model.m[i] - model.m[i - 1];
+      Ua += 0.5 * (ua[i] + ua[i - 1]) * dm;
+      Ub += 0.5 * (ub[i] + ub[i - 1]) * dm;
+      Omega += 0.5 * (gm_r[i] + gm_r[i - 1]) * dm;
     }
-    const double gr = gm_over_r(i);
-    const double first = model.r[i] > 0.0 ? G / model.r[i] * (U - Omega) : 0.0;
-    const double f = first + 0.5 * gr * gr + gr * (u[i] + p_over_rho(model, i));
-    if (i > 0) total += 0.5 * (f + prev_f) * (model.m[i] - model.m[i - 1]);
-    prev_f = f;
+    const double gr = gm_r[i];
+    const bool inside = model.r[i] > 0.0;
+    const double fa =
+        (inside ? g_r[i] * (Ua - Omega) : 0.0) + 0.5 * gr * gr + gr * (ua[i] + p_rho[i]);
+    const double fb =
+        (inside ? g_r[i] * (Ub - Omega) : 0.0) + 0.5 * gr * gr + gr * (ub[i] + p_rho[i]);
+    if (i > 0) {
+      total.a += 0.5 * (fa + prev_fa) * dm;
+      total.b += 0.5 * (fb + prev_fb) * dm;
+    }
+    prev_fa = fa;
+    prev_fb = fb;
   }
   return total;
 }
@@ -200,24 +251,51 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
   d.has_centre = model.has_centre();
   d.surface_pressure = model.surface_pressure();
 
+  // Per-point quantities, each in a loop of its own without branches, so that the compiler
+  // can vectorize the divisions; every value is the same expression as before, bit for bit.
+  // P / rho [erg g^-1] is taken as 0 at a zero-pressure surface point where rho = 0 too (the
+  // limit for a polytrope, where P/rho is proportional to theta).
+  std::vector<double> p_rho(n), c_s(n), work(n);
+  for (std::size_t i = 0; i < n; ++i) {
+    const double q = P[i] / rho[i]; // 0/0 at such a surface point: replaced by 0
+    p_rho[i] = P[i] == 0.0 ? 0.0 : q;
+  }
+  for (std::size_t i = 0; i < n; ++i) c_s[i] = std::sqrt(g1[i] * p_rho[i]);
+
   // Time scales.
   d.t_dyn_s = 1.0 / std::sqrt(G * d.mean_density_g_cm3);
   d.t_kepler_s = std::sqrt(R * R * R / (G * M));
   d.t_freefall_s = std::sqrt(3.0 * pi / (32.0 * G * d.mean_density_g_cm3));
   {
+    std::vector<double>& cell = work; // 2 dr / (c_i-1 + c_i) of cell i
+    for (std::size_t i = 1; i < n; ++i) cell[i] = 2.0 * (r[i] - r[i - 1]) / (c_s[i - 1] + c_s[i]);
     double t = 0;
     for (std::size_t i = 1; i < n; ++i) {
-      const double dr = r[i] - r[i - 1];
-      if (dr == 0.0) continue;
-      const double c0 = std::sqrt(g1[i - 1] * p_over_rho(model, i - 1));
-      const double c1 = std::sqrt(g1[i] * p_over_rho(model, i));
-      if (c0 + c1 == 0.0) {
+      if (r[i] - r[i - 1] == 0.0) continue;
+      if (c_s[i - 1] + c_s[i] == 0.0) {
         t = std::numeric_limits<double>::infinity();
         break;
       }
-      t += 2.0 * dr / (c0 + c1);
+      t += cell[i];
     }
     d.t_sound_s = t;
+  }
+
+  // One pass for the extremes and the monotonicity of P and m.
+  std::size_t g1_min_index = 0;
+  double p_max = P[0];
+  bool g1_above_1 = true;
+  // With P non-increasing and m non-decreasing along the table, "not resolved" in the HSE
+  // check holds on a contiguous run next to each point (stencil ends found by bisection).
+  bool p_monotone = true, m_monotone = true;
+  for (std::size_t i = 0; i < n; ++i) {
+    if (g1[i] < g1[g1_min_index]) g1_min_index = i; // the first minimum, as std::min_element
+    if (P[i] > p_max) p_max = P[i];
+    g1_above_1 = g1_above_1 && g1[i] > 1.0;
+    if (i > 0) {
+      p_monotone = p_monotone && P[i] <= P[i - 1];
+      m_monotone = m_monotone && m[i] >= m[i - 1];
+    }
   }
 
   // Integrals in r (trapezoid): mass, pressure moments, inertia of xi = const.
@@ -241,9 +319,8 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
                                       : std::numeric_limits<double>::infinity();
 
   d.gamma1_pressure_weighted = g1p_int / p_int;
-  const auto gmin = std::min_element(g1.begin(), g1.end());
-  d.gamma1_min = *gmin;
-  d.gamma1_min_r_cm = r[static_cast<std::size_t>(gmin - g1.begin())];
+  d.gamma1_min = g1[g1_min_index];
+  d.gamma1_min_r_cm = r[g1_min_index];
   find_gamma1_zones(model, d);
   const double inertia = inertia_int + std::pow(R, 6) * d.surface_pressure / (G * M);
   d.omega2_homologous = 9.0 * excess_int / inertia;
@@ -251,31 +328,37 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
 
   // Hydrostatic equilibrium residual.
   {
-    std::vector<double> s(n);
+    std::vector<double> s(n); // m^(2/3), the mass-form coordinate
     for (std::size_t i = 0; i < n; ++i) s[i] = std::cbrt(m[i] * m[i]);
-    const double p_floor = options.hse_pressure_floor * *std::max_element(P.begin(), P.end());
+    // Exact dP/dr = -G m rho / r^2 and dP/ds = -3 G m^(4/3) / (8 pi r^4) per point (used where
+    // r > 0); m^(4/3) = s^2 and r^4 = (r^2)^2, within a few units of round-off of the powers.
+    std::vector<double>& g_rho = work;
+    std::vector<double> target_s(n);
+    for (std::size_t i = 0; i < n; ++i) {
+      const double r2 = r[i] * r[i];
+      g_rho[i] = G * m[i] * rho[i] / (r[i] * r[i]);
+      target_s[i] = -3.0 * G * (s[i] * s[i]) / (8.0 * pi * (r2 * r2));
+    }
+    const double p_floor = options.hse_pressure_floor * p_max;
     double worst = -1;
     for (std::size_t i = 1; i + 1 < n; ++i) {
       if (!(r[i] > 0.0) || !(m[i] > 0.0) || P[i] < p_floor) {
         ++d.hse_points_skipped;
         continue;
       }
-      const double g_rho = G * m[i] * rho[i] / (r[i] * r[i]);
-      const double target_s = -3.0 * G * std::cbrt(std::pow(m[i], 4)) /
-                              (8.0 * pi * std::pow(r[i], 4));
       const double eps = hse_min_relative_change;
       auto p_too_close = [&](std::size_t j) { return std::abs(P[j] - P[i]) < eps * P[i]; };
       // Radius form: only where P changes by less than a factor 2 across the stencil (next to
       // a power-law zero of P the three-point difference has an O(1) error).
-      const double by_r = residual_form(r, P, i, -g_rho, p_too_close,
+      const double by_r = residual_form(r, P, i, -g_rho[i], p_too_close, p_monotone,
                                         [&](std::size_t a, std::size_t b) {
                                           return std::min(P[a], P[b]) >= 0.5 * std::max(P[a], P[b]);
                                         });
       // Mass form: the mass differences must be resolved as well.
       const double by_m = residual_form(
-          s, P, i, target_s,
+          s, P, i, target_s[i],
           [&](std::size_t j) { return p_too_close(j) || std::abs(m[j] - m[i]) < eps * m[i]; },
-          [](std::size_t, std::size_t) { return true; });
+          p_monotone && m_monotone, [](std::size_t, std::size_t) { return true; });
       double res;
       if (std::isnan(by_r) && std::isnan(by_m)) {
         ++d.hse_points_skipped;
@@ -302,27 +385,29 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
   // Post-Newtonian coefficient.
   d.compactness = 2.0 * G * M / (R * constants::c_light * constants::c_light);
   {
-    double W = 0; // int G m dm / r
-    for (std::size_t i = 1; i < n; ++i) {
-      auto f = [&](std::size_t k) { return r[k] > 0.0 ? G * m[k] / r[k] : 0.0; };
-      W += 0.5 * (f(i) + f(i - 1)) * (m[i] - m[i - 1]);
+    std::vector<double> gm_r(n), g_r(n);
+    for (std::size_t i = 0; i < n; ++i) {
+      const double inverse = G / r[i], mass_term = G * m[i] / r[i]; // r = 0: replaced by 0
+      g_r[i] = r[i] > 0.0 ? inverse : 0.0;
+      gm_r[i] = r[i] > 0.0 ? mass_term : 0.0;
     }
+    double W = 0; // int G m dm / r
+    for (std::size_t i = 1; i < n; ++i) W += 0.5 * (gm_r[i] + gm_r[i - 1]) * (m[i] - m[i - 1]);
     d.binding_a = W * R / (G * M * M);
     std::vector<double> u_rad(n), u_model(n);
     d.model_has_u = model.u.size() == n;
-    const bool model_u_defined =
-        d.model_has_u || std::all_of(g1.begin(), g1.end(), [](double g) { return g > 1.0; });
-    for (std::size_t i = 0; i < n; ++i) {
-      u_rad[i] = 3.0 * p_over_rho(model, i);
-      u_model[i] = d.model_has_u ? model.u[i]
-                                 : (model_u_defined ? p_over_rho(model, i) / (g1[i] - 1.0) : 0.0);
-    }
+    const bool model_u_defined = d.model_has_u || g1_above_1;
+    for (std::size_t i = 0; i < n; ++i) u_rad[i] = 3.0 * p_rho[i];
+    if (d.model_has_u)
+      u_model = model.u;
+    else if (model_u_defined)
+      for (std::size_t i = 0; i < n; ++i) u_model[i] = p_rho[i] / (g1[i] - 1.0);
     const double scale = G * G * M * M * M / (R * R);
-    const double b_rad = pn_integral(model, u_rad) / scale;
-    d.pn_coefficient_radiation_limit = b_rad / (3.0 * d.binding_a);
+    const PnIntegrals b = pn_integrals(model, u_rad, u_model, gm_r, g_r, p_rho);
+    d.pn_coefficient_radiation_limit = b.a / scale / (3.0 * d.binding_a);
     d.pn_coefficient_model_energy = std::numeric_limits<double>::quiet_NaN();
     if (model_u_defined)
-      d.pn_coefficient_model_energy = pn_integral(model, u_model) / scale / (3.0 * d.binding_a);
+      d.pn_coefficient_model_energy = b.b / scale / (3.0 * d.binding_a);
     else if (options.pn_energy == PnEnergy::model)
       throw Error(ErrorKind::numerical,
                   model.source + ": the post-Newtonian coefficient with the model's internal "

@@ -9,8 +9,11 @@
 
 #include <doctest/doctest.h>
 
+#include <algorithm>
 #include <cmath>
+#include <limits>
 #include <string>
+#include <vector>
 
 using namespace radmode;
 namespace c = radmode::constants;
@@ -231,4 +234,97 @@ TEST_CASE("invalid options are usage errors naming the option") {
   opt = {};
   opt.hse_pressure_floor = 1.5;
   CHECK_THROWS_WITH_AS(diagnose(model, opt), doctest::Contains("hse_pressure_floor"), UsageError);
+}
+
+namespace {
+
+/// The HSE check of diagnostics.hpp written out point by point, one neighbour at a time, as
+/// its header comment defines it (three-point derivative with the textbook non-uniform
+/// weights; radius form and mass form; stencils widened while P, and for the mass form m,
+/// differ by less than 1e-4 relative). Reference for the faster search in diagnose().
+struct NaiveHse {
+  double max = -1;
+  std::size_t worst = 0, checked = 0, skipped = 0;
+};
+
+NaiveHse naive_hse(const StellarModel& md, double floor_fraction) {
+  const auto& r = md.r;
+  const auto& m = md.m;
+  const auto& P = md.P;
+  const std::size_t n = md.size();
+  std::vector<double> s(n);
+  for (std::size_t i = 0; i < n; ++i) s[i] = std::cbrt(m[i] * m[i]);
+  double p_max = 0;
+  for (double p : P) p_max = std::max(p_max, p);
+  const double nan = std::numeric_limits<double>::quiet_NaN();
+  auto form = [&](const std::vector<double>& x, std::size_t i, double target, bool use_m,
+                  bool need_factor_2) {
+    auto close = [&](std::size_t j) {
+      return std::abs(P[j] - P[i]) < 1e-4 * P[i] || (use_m && std::abs(m[j] - m[i]) < 1e-4 * m[i]);
+    };
+    std::size_t a = i, b = i;
+    while (a > 0 && x[a] == x[i]) --a;
+    while (b + 1 < n && x[b] == x[i]) ++b;
+    if (x[a] == x[i] || x[b] == x[i]) return nan;
+    while (close(a) && a > 0) --a;
+    while (close(b) && b + 1 < n) ++b;
+    if (close(a) || close(b)) return nan;
+    if (need_factor_2 && std::min(P[a], P[b]) < 0.5 * std::max(P[a], P[b])) return nan;
+    const double h1 = x[i] - x[a], h2 = x[b] - x[i];
+    const double d =
+        -h2 / (h1 * (h1 + h2)) * P[a] + (h2 - h1) / (h1 * h2) * P[i] + h1 / (h2 * (h1 + h2)) * P[b];
+    return std::abs(d - target) / std::abs(target);
+  };
+  NaiveHse out;
+  for (std::size_t i = 1; i + 1 < n; ++i) {
+    if (!(r[i] > 0) || !(m[i] > 0) || P[i] < floor_fraction * p_max) {
+      ++out.skipped;
+      continue;
+    }
+    const double by_r = form(r, i, -c::G * m[i] * md.rho[i] / (r[i] * r[i]), false, true);
+    const double by_m = form(
+        s, i, -3 * c::G * std::pow(m[i], 4.0 / 3.0) / (8 * c::pi * std::pow(r[i], 4)), true, false);
+    if (std::isnan(by_r) && std::isnan(by_m)) {
+      ++out.skipped;
+      continue;
+    }
+    const double res = std::isnan(by_r) ? by_m : std::isnan(by_m) ? by_r : std::min(by_r, by_m);
+    ++out.checked;
+    if (res > out.max) {
+      out.max = res;
+      out.worst = i;
+    }
+  }
+  return out;
+}
+
+void check_hse_against_naive(const StellarModel& md) {
+  const auto d = diagnose(md);
+  const auto ref = naive_hse(md, DiagnosticsOptions{}.hse_pressure_floor);
+  CHECK(d.hse_points_checked == ref.checked);
+  CHECK(d.hse_points_skipped == ref.skipped);
+  CHECK(d.hse_worst_index == ref.worst);
+  // Same definition, other arrangement of the arithmetic: agreement to round-off, amplified
+  // by at most 1e4 by the differences of P across a stencil.
+  CHECK(d.hse_residual_max == doctest::Approx(ref.max).epsilon(1e-9));
+}
+
+} // namespace
+
+TEST_CASE("hydrostatic residual: the stencil search agrees with the point-by-point definition") {
+  SUBCASE("polytropes n = 1.5 and 3 (wide stencils near the centre)") {
+    for (double n : {1.5, 3.0})
+      for (std::size_t points : {57u, 2000u}) {
+        CAPTURE(n);
+        CAPTURE(points);
+        check_hse_against_naive(polytrope_model(n, points, c::M_sun, c::R_sun, 5.0 / 3.0));
+      }
+  }
+  SUBCASE("a flat-pressure core and a pressure bump (P not monotonic: one step at a time)") {
+    auto md = polytrope_model(3.0, 800, c::M_sun, c::R_sun, 5.0 / 3.0);
+    for (std::size_t i = 0; i < 120; ++i) md.P[i] = md.P[120]; // unresolved core
+    check_hse_against_naive(md);
+    md.P[400] *= 1.05; // a bump: P is no longer monotonic
+    check_hse_against_naive(md);
+  }
 }

@@ -126,7 +126,9 @@ std::string_view trim(std::string_view s) {
 // "How to read floating point numbers accurately", PLDI). Every other number goes to
 // std::from_chars, so the result is always the double std::from_chars gives.
 
-bool is_digit(char c) { return static_cast<unsigned char>(c - '0') < 10; }
+bool is_digit(char c) {
+  return static_cast<unsigned char>(c - '0') < 10;
+}
 
 // Eight digits at a time from one 64-bit load, on little-endian machines (first character in
 // the lowest byte); elsewhere one digit at a time.
@@ -250,8 +252,7 @@ Scan scan_number(const char* p, const char* end, const char*& stop, double& out)
     k += exp_negative ? -e : e;
     stop = p;
   }
-  if (digits <= max_digits && exact_product(w, k, negative, out))
-    return Scan::converted;
+  if (digits <= max_digits && exact_product(w, k, negative, out)) return Scan::converted;
   return plain;
 }
 
@@ -261,12 +262,15 @@ Scan scan_number(const char* p, const char* end, const char*& stop, double& out)
 struct BlankTable {
   bool blank[256] = {};
   constexpr BlankTable() {
-    for (const char c : {' ', '\t', '\r', '\v', '\f', ','}) blank[static_cast<unsigned char>(c)] = true;
+    for (const char c : {' ', '\t', '\r', '\v', '\f', ','})
+      blank[static_cast<unsigned char>(c)] = true;
   }
 };
 constexpr BlankTable blank_table;
 
-bool is_blank_char(char c) { return blank_table.blank[static_cast<unsigned char>(c)]; }
+bool is_blank_char(char c) {
+  return blank_table.blank[static_cast<unsigned char>(c)];
+}
 
 /// Splits a line into fields (separators: whitespace and commas; `#` ends the line).
 class FieldCursor {
@@ -594,8 +598,8 @@ void TableReader::read_row(std::string_view line) {
                                 ? "the header (line " + std::to_string(m_header_line) + ")"
                                 : "the first row";
     throw InputError(ErrorKind::bad_format, at(m_line_no),
-                     "expected " + std::to_string(n_targets) + " fields as in " + ref +
-                         ", found " + std::to_string(column));
+                     "expected " + std::to_string(n_targets) + " fields as in " + ref + ", found " +
+                         std::to_string(column));
   }
   m_lines.push_back(m_line_no);
 }

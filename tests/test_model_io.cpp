@@ -491,16 +491,43 @@ std::uint64_t bits_of(double x) {
 /// general path (16 to 25 digits, large and tiny exponents, subnormals, ties), with signs,
 /// leading zeros, Fortran exponents and points in every place.
 std::vector<std::string> number_tokens() {
-  std::vector<std::string> out = {
-      "0", "-0", "+0", "0.0", "-0.0e5", "0e99999", "00012.5000", "000.000125", "1.", ".5", "-.5",
-      "9007199254740992", "9007199254740993", "9007199254740995", "90071992547409930e-1",
-      "4503599627370497.5", "1e22", "1e23", "123456789012345e10", "8.98846567431158e307",
-      "1.7976931348623157e308", "2.2250738585072014e-308", "2.2250738585072011e-308",
-      "4.9406564584124654e-324", "2.4703282292062328e-324", "1e-320", "1.0D+05", "-2.5d-3",
-      "+6.02214076E+23", "0.30000000000000004", "1234567890123456789",
-      "12345678901234567890", "1.2345678901234567890123e-7",
-      "0.000000000000000000000000000000000000001", "1e-22", "1e-23"};
-  char buf[400]; // %.3f of 1e308 has 313 characters
+  std::vector<std::string> out = {"0",
+                                  "-0",
+                                  "+0",
+                                  "0.0",
+                                  "-0.0e5",
+                                  "0e99999",
+                                  "00012.5000",
+                                  "000.000125",
+                                  "1.",
+                                  ".5",
+                                  "-.5",
+                                  "9007199254740992",
+                                  "9007199254740993",
+                                  "9007199254740995",
+                                  "90071992547409930e-1",
+                                  "4503599627370497.5",
+                                  "1e22",
+                                  "1e23",
+                                  "123456789012345e10",
+                                  "8.98846567431158e307",
+                                  "1.7976931348623157e308",
+                                  "2.2250738585072014e-308",
+                                  "2.2250738585072011e-308",
+                                  "4.9406564584124654e-324",
+                                  "2.4703282292062328e-324",
+                                  "1e-320",
+                                  "1.0D+05",
+                                  "-2.5d-3",
+                                  "+6.02214076E+23",
+                                  "0.30000000000000004",
+                                  "1234567890123456789",
+                                  "12345678901234567890",
+                                  "1.2345678901234567890123e-7",
+                                  "0.000000000000000000000000000000000000001",
+                                  "1e-22",
+                                  "1e-23"};
+  char buf[400];                               // %.3f of 1e308 has 313 characters
   std::uint64_t state = 0x2545f4914f6cdd1dULL; // xorshift64 (Marsaglia 2003)
   auto next = [&state] {
     state ^= state << 13;
@@ -513,10 +540,20 @@ std::vector<std::string> number_tokens() {
     const int digits[8] = {17, 16, 15, 8, 6, 3, 10, 1};
     const int d = digits[form];
     switch (form) {
-    case 0: case 2: case 4: std::snprintf(buf, sizeof buf, "%.*g", d, v); break;
-    case 5: std::snprintf(buf, sizeof buf, "%.*f", d, v); break;
-    case 6: std::snprintf(buf, sizeof buf, "%.*E", d, v); break;
-    default: std::snprintf(buf, sizeof buf, "%.*e", d, v); break;
+    case 0:
+    case 2:
+    case 4:
+      std::snprintf(buf, sizeof buf, "%.*g", d, v);
+      break;
+    case 5:
+      std::snprintf(buf, sizeof buf, "%.*f", d, v);
+      break;
+    case 6:
+      std::snprintf(buf, sizeof buf, "%.*E", d, v);
+      break;
+    default:
+      std::snprintf(buf, sizeof buf, "%.*e", d, v);
+      break;
     }
     return std::string(buf);
   };
@@ -577,8 +614,8 @@ TEST_CASE("table rows: every field form gives the C library's double") {
     const char* sep = separators[i % 6];
     const double p = std::abs(strtod_reference(token));
     if (!(p <= 1e300)) continue; // keep the table valid (no inf)
-    t += std::to_string(i) + sep + std::to_string(i) + sep + (token[0] == '-' ? token.substr(1) : token) +
-         sep + "1.5" + sep + "1.6";
+    t += std::to_string(i) + sep + std::to_string(i) + sep +
+         (token[0] == '-' ? token.substr(1) : token) + sep + "1.5" + sep + "1.6";
     t += (i % 5 == 0) ? "# note\r\n" : (i % 7 == 0 ? "\r\n" : "\n");
     expected.push_back(p);
     ++i;
@@ -610,8 +647,8 @@ TEST_CASE("table rows: long lines, missing final newline, junk after a number") 
     CHECK(model.gamma1.back() == 1.6);
   }
   SUBCASE("junk glued to a number is a bad number, naming line and column") {
-    for (const char* junk : {"1.5x", "1.5e", "1.5e+", "1.5.5", "1.5-", "1.5D", "+-1.5", "1.5e5x",
-                             "0x15", "1.5\v9"}) {
+    for (const char* junk :
+         {"1.5x", "1.5e", "1.5e+", "1.5.5", "1.5-", "1.5D", "+-1.5", "1.5e5x", "0x15", "1.5\v9"}) {
       auto lines = good_lines();
       lines[6] = std::string("4 16 96 ") + junk + " 1.6";
       const auto text = join(lines);

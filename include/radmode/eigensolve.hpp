@@ -80,8 +80,11 @@ struct ModeSolution {
   /// largest |w| among the modes solved together (see PencilEigenpair::residual).
   double residual = 0;
   /// Part of error_estimate [s^-2] due to the interpolation of the model between its table
-  /// points: |w(every other row) - w(all rows)|/3 for the fine eigenvector (Rayleigh quotient;
-  /// interpolation error is O(h^2) like the discretization error). 0 when !richardson.
+  /// points: |dw|/3, dw the first-order change of omega2 (x^T (dK - w dM) x for the fine
+  /// eigenvector, the change of the form integrated with Simpson's rule on every element)
+  /// when the model is interpolated from every other table row instead of all rows
+  /// (interpolation error is at worst O(h^2) like the discretization error). 0 when
+  /// !richardson.
   double interpolation_error = 0;
 
   /// xi = delta r / r at the FE nodes (ModeSet::node_r), normalized to xi(R) = 1.

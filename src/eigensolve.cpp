@@ -619,20 +619,25 @@ std::vector<double> interpolation_change(const Structure& s, const Structure& ha
                                          const WeakForm& form, const TridiagonalPencil& pf,
                                          const std::vector<PencilEigenpair>& pairs) {
   const double R = s.radius(), M = s.mass();
-  const double P_inv = R * R * R * R / (constants::G * M * M), rho_inv = R * R * R / M;
+  const double P_inv = R * R * R * R / (constants::G * M * M), rho_inv = R * R * R / M, m_inv = 1 / M;
   const std::size_t offset = pf.node.front(); // 1 with a rigid inner node
   const std::vector<double>& x = form.x;
   const std::vector<double>& r = s.node_r();
-  struct Delta {
-    double a, b, c, d; // change of the coefficients at one point
+  // The form's coefficients at x from structure values (make_stellar_form's formulas).
+  auto coefficients = [&](const StructureValues& v, double xq) {
+    const double gp = v.gamma1 * v.P * P_inv, x2 = xq * xq;
+    return FormCoefficients{gp * x2 * x2, 3.0 * gp * x2 * xq,
+                            9.0 * gp * x2 - 4.0 * v.m * m_inv * v.rho * rho_inv * xq,
+                            v.rho * rho_inv * x2 * x2};
   };
-  auto delta = [&](const StructureValues& h, const StructureValues& f, double xq) {
-    const double x2 = xq * xq;
-    const double dgp = (h.gamma1 * h.P - f.gamma1 * f.P) * P_inv;
-    return Delta{dgp * x2 * x2, 3.0 * dgp * x2 * xq,
-                 9.0 * dgp * x2 - 4.0 * (h.m * h.rho - f.m * f.rho) * rho_inv / M * xq,
-                 (h.rho - f.rho) * rho_inv * x2 * x2};
+  using Delta = FormCoefficients; // change of the coefficients at one point
+  auto minus = [](const FormCoefficients& u, const FormCoefficients& v) {
+    return Delta{u.a - v.a, u.b - v.b, u.c - v.c, u.d - v.d};
   };
+  // The whole structure at interval midpoints: the form's own samples when its rule has a
+  // point at t = 1/2 (odd Gauss rules), else evaluated.
+  const auto q = static_cast<std::size_t>(form.points_per_interval);
+  const bool mid_sampled = q % 2 == 1 && form.t[q / 2] == 0.5;
   std::vector<double> change(pairs.size(), 0.0);
   const Delta zero{0, 0, 0, 0};
   for (std::size_t k = 0; k + 1 < kept.size(); ++k) {
@@ -641,21 +646,24 @@ std::vector<double> interpolation_change(const Structure& s, const Structure& ha
     for (std::size_t i = kept[k]; i < kept[k + 1]; ++i) {
       const double h = x[i + 1] - x[i];
       const double rm = 0.5 * (r[i] + r[i + 1]);
-      const Delta mid = delta(half.values_at(k, (rm - r0) / span), s.values_at(i, 0.5),
-                              0.5 * (x[i] + x[i + 1]));
+      const double xm = 0.5 * (x[i] + x[i + 1]);
+      const std::size_t j = i * q + q / 2;
+      const Delta mid = minus(coefficients(half.values_at(k, (rm - r0) / span), xm),
+                              mid_sampled ? FormCoefficients{form.a[j], form.b[j], form.c[j], form.d[j]}
+                                          : coefficients(s.values_at(i, 0.5), xm));
       const Delta right = i + 1 == kept[k + 1]
                               ? zero
-                              : delta(half.values_at(k, (r[i + 1] - r0) / span),
-                                      s.values_at(i + 1, 0.0), x[i + 1]);
-      for (std::size_t q = 0; q < pairs.size(); ++q) {
-        const std::vector<double>& v = pairs[q].x;
-        const double lambda = pairs[q].lambda;
+                              : minus(coefficients(half.values_at(k, (r[i + 1] - r0) / span), x[i + 1]),
+                                      coefficients(s.values_at(i + 1, 0.0), x[i + 1]));
+      for (std::size_t e = 0; e < pairs.size(); ++e) {
+        const std::vector<double>& v = pairs[e].x;
+        const double lambda = pairs[e].lambda;
         const double ul = i < offset ? 0.0 : v[i - offset], ur = v[i + 1 - offset];
         const double slope = (ur - ul) / h, um = 0.5 * (ul + ur);
         auto F = [&](const Delta& d, double u) {
           return d.a * slope * slope + 2.0 * d.b * u * slope + (d.c - lambda * d.d) * u * u;
         };
-        change[q] += h / 6.0 * (F(left, ul) + 4.0 * F(mid, um) + F(right, ur));
+        change[e] += h / 6.0 * (F(left, ul) + 4.0 * F(mid, um) + F(right, ur));
       }
       left = right;
     }

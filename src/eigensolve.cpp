@@ -423,11 +423,13 @@ void finalize(Engine& eng, std::vector<PencilEigenpair> found, int i0, int i1, P
 /// vectors advanced together, see pencil_block.hpp), until the residual is below
 /// `residual_tol` or the quotient stops moving; then the same inertia verification and
 /// recovery as solve_pencil. (The eigenvalue error is of the order of the squared residual.)
+/// first_shifts: see detail::rayleigh_iterate.
 PencilSpectrum refine_from(const TridiagonalPencil& p, int i0, int i1,
-                           std::vector<std::vector<double>> starts, double residual_tol) {
+                           std::vector<std::vector<double>> starts, double residual_tol,
+                           const std::vector<double>& first_shifts) {
   Engine eng(p);
   PencilSpectrum out;
-  detail::rayleigh_iterate(p, starts, 2, 4, eng.scale, residual_tol);
+  detail::rayleigh_iterate(p, starts, 2, 4, eng.scale, residual_tol, first_shifts);
   finalize(eng, eng.finish_all(std::move(starts)), i0, i1, out);
   return out;
 }
@@ -606,6 +608,28 @@ void add_flag(ModeSolution& m, const std::string& text) {
 
 namespace {
 
+/// Eigenvalue estimates on the next finer mesh from those on two successive coarser ones
+/// (`coarse`, and `coarser` with twice its spacing), by the h^2 law of linear elements:
+/// lambda ~ coarse - (coarser - coarse)/4. Used only as the shift of the first Rayleigh quotient
+/// step, so an estimate is dropped (NaN) unless the coarser value lies above the coarse one (as
+/// Courant-Fischer requires of nested meshes) and the correction stays under a quarter of the
+/// distance to the neighbouring eigenvalues. Empty when `coarser` is.
+std::vector<double> predict_finer(const std::vector<double>& coarse,
+                                  const std::vector<double>& coarser) {
+  std::vector<double> out;
+  if (coarser.size() != coarse.size()) return out;
+  const double nan = std::numeric_limits<double>::quiet_NaN();
+  for (std::size_t i = 0; i < coarse.size(); ++i) {
+    const double step = (coarser[i] - coarse[i]) / 4.0;
+    double gap = std::numeric_limits<double>::infinity();
+    if (i > 0) gap = std::min(gap, coarse[i] - coarse[i - 1]);
+    if (i + 1 < coarse.size()) gap = std::min(gap, coarse[i + 1] - coarse[i]);
+    const bool usable = std::isfinite(step) && step >= 0 && step < 0.25 * gap;
+    out.push_back(usable ? coarse[i] - step : nan);
+  }
+  return out;
+}
+
 /// First-order change of each eigenvalue (pencil units) when the model between its table rows
 /// is interpolated from every other row instead of all rows:
 ///     d lambda = x^T (dK - lambda dM) x / x^T M x,
@@ -735,13 +759,25 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
     if (sb.status == SolveStatus::ok && static_cast<int>(sb.pairs.size()) == i1 - i0) {
       std::vector<std::vector<double>> xs;
       xs.reserve(sb.pairs.size());
-      for (auto& c : sb.pairs) xs.push_back(std::move(c.x));
+      // Eigenvalues on the last two meshes climbed: the first shift on the next one is
+      // extrapolated from them (predict_finer).
+      std::vector<double> lambda_coarser, lambda_coarse;
+      for (auto& c : sb.pairs) {
+        xs.push_back(std::move(c.x));
+        lambda_coarse.push_back(c.lambda);
+      }
+      auto climbed = [&](std::vector<double> lambdas) {
+        lambda_coarser = std::move(lambda_coarse);
+        lambda_coarse = std::move(lambdas);
+      };
       // Up through the lower levels: one Rayleigh quotient step each (start vectors only).
       const TridiagonalPencil* from = &bottom;
       for (std::size_t l = lower.size(); l-- > 0;) {
         const TridiagonalPencil& to = l == 0 ? *pc : lower[l - 1].pencil;
         for (auto& x : xs) x = prolong(form.x, *from, x, to);
-        if (l > 0) detail::rayleigh_iterate(to, xs, 1, 1, spectrum_scale(to));
+        if (l > 0)
+          climbed(detail::rayleigh_iterate(to, xs, 1, 1, spectrum_scale(to), 0,
+                                           predict_finer(lambda_coarse, lambda_coarser)));
         from = &to;
       }
       if (lower.empty()) {
@@ -749,14 +785,22 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
       } else {
         // Its eigenvectors only start the fine mesh's iteration: residual 1e-7 suffices (the
         // eigenvalues are then exact to round-off, being quadratic in the residual).
-        sc = refine_from(*pc, i0, i1, std::move(xs), 1e-7);
+        sc = refine_from(*pc, i0, i1, std::move(xs), 1e-7,
+                         predict_finer(lambda_coarse, lambda_coarser));
         sc->iterations = sb.iterations;
       }
       if (sc->status == SolveStatus::ok && static_cast<int>(sc->pairs.size()) == i1 - i0) {
         std::vector<std::vector<double>> starts;
         starts.reserve(sc->pairs.size());
-        for (const auto& c : sc->pairs) starts.push_back(prolong(form.x, *pc, c.x, pf));
-        sf = refine_from(pf, i0, i1, std::move(starts), 1e-9);
+        std::vector<double> lambdas;
+        for (const auto& c : sc->pairs) {
+          starts.push_back(prolong(form.x, *pc, c.x, pf));
+          lambdas.push_back(c.lambda);
+        }
+        if (!lower.empty()) climbed(std::move(lambdas));
+        else lambda_coarse = std::move(lambdas);
+        sf = refine_from(pf, i0, i1, std::move(starts), 1e-9,
+                         predict_finer(lambda_coarse, lambda_coarser));
         sf.iterations = sb.iterations;
         nested = true;
       } else {

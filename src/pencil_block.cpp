@@ -98,12 +98,14 @@ public:
   /// rho[b]: the quotient of xs[b] (NaN: computed here); on return the quotient of the new
   /// vector, and res[b] its residual (when `residual`), or unchanged with ok[b] = false when
   /// the step gave a zero or non-finite vector (xs[b] is then left as it was).
-  void run(std::vector<double>* const* xs, double* rho, bool residual, double* res, bool* ok) {
+  /// `given`: shifts to use instead of the quotients (NaN: the quotient).
+  void run(std::vector<double>* const* xs, const double* given, double* rho, bool residual,
+           double* res, bool* ok) {
     double* const x = t_work.x.data();
     for (std::size_t j = 0; j < m_n; ++j)
       for (std::size_t b = 0; b < B; ++b) x[j * B + b] = (*xs[b])[j];
     bool known = true;
-    for (std::size_t b = 0; b < B; ++b) known = known && !std::isnan(rho[b]);
+    for (std::size_t b = 0; b < B; ++b) known = known && (!std::isnan(rho[b]) || !std::isnan(given[b]));
     if (!known) {
       double q[B];
       quotients(x, q);
@@ -111,7 +113,10 @@ public:
         if (std::isnan(rho[b])) rho[b] = q[b];
     }
     double shift[B];
-    for (std::size_t b = 0; b < B; ++b) shift[b] = std::isfinite(rho[b]) ? rho[b] : 0.0;
+    for (std::size_t b = 0; b < B; ++b) {
+      shift[b] = std::isnan(given[b]) ? rho[b] : given[b];
+      if (!std::isfinite(shift[b])) shift[b] = 0.0;
+    }
     step(shift, rho, ok);
     if (residual) residuals(rho, res);
     for (std::size_t j = 0; j < m_n; ++j)
@@ -240,8 +245,10 @@ std::vector<int> inertia_below_many(const TridiagonalPencil& p, const std::vecto
   return counts;
 }
 
-void rayleigh_iterate(const TridiagonalPencil& p, std::vector<std::vector<double>>& xs,
-                      int min_steps, int max_steps, double scale, double residual_tol) {
+std::vector<double> rayleigh_iterate(const TridiagonalPencil& p,
+                                     std::vector<std::vector<double>>& xs, int min_steps,
+                                     int max_steps, double scale, double residual_tol,
+                                     const std::vector<double>& first_shifts) {
   for (const auto& x : xs)
     if (x.size() != p.size()) throw UsageError("Rayleigh quotient iteration: vector of the wrong size");
   double kmax = 0, mmax = 0;
@@ -270,14 +277,16 @@ void rayleigh_iterate(const TridiagonalPencil& p, std::vector<std::vector<double
     if (todo.empty()) break;
     for_chunks(todo.size(), [&](std::size_t first, std::size_t width) {
       std::vector<double>* ptr[max_width];
-      double r[max_width], e[max_width];
+      double r[max_width], e[max_width], given[max_width];
       bool ok[max_width];
       for (std::size_t b = 0; b < width; ++b) {
-        ptr[b] = &xs[todo[first + b]];
-        r[b] = rho[todo[first + b]];
+        const std::size_t i = todo[first + b];
+        ptr[b] = &xs[i];
+        r[b] = rho[i];
+        given[b] = it == 0 && i < first_shifts.size() ? first_shifts[i] : nan;
       }
       with_width(width, [&](auto w) {
-        RqiStep<decltype(w)::value>(p, kmax, mmax).run(ptr, r, residual_tol > 0, e, ok);
+        RqiStep<decltype(w)::value>(p, kmax, mmax).run(ptr, given, r, residual_tol > 0, e, ok);
       });
       for (std::size_t b = 0; b < width; ++b) {
         const std::size_t i = todo[first + b];
@@ -290,6 +299,7 @@ void rayleigh_iterate(const TridiagonalPencil& p, std::vector<std::vector<double
       }
     });
   }
+  return rho;
 }
 
 MeshLevel coarsen(const std::vector<std::size_t>& fn, bool fix_first,

@@ -24,9 +24,13 @@ std::vector<int> inertia_below_many(const TridiagonalPencil& p, const std::vecto
 /// 1e-14 |rho| + 4 eps `scale` between steps (scale: magnitude of the spectrum), or (when
 /// residual_tol > 0) after any step whose residual ||K x - rho M x|| / (||K x|| + |rho| ||M x||)
 /// is at most residual_tol. Vectors that become zero or non-finite are left as they were
-/// before the failing step.
-void rayleigh_iterate(const TridiagonalPencil& p, std::vector<std::vector<double>>& xs,
-                      int min_steps, int max_steps, double scale, double residual_tol = 0);
+/// before the failing step. The first step of vector i uses first_shifts[i] instead of its
+/// quotient when given (and not NaN): a better estimate of the eigenvalue, e.g. extrapolated
+/// from coarser meshes, makes that step far more effective. Returns the final quotients.
+std::vector<double> rayleigh_iterate(const TridiagonalPencil& p,
+                                     std::vector<std::vector<double>>& xs, int min_steps,
+                                     int max_steps, double scale, double residual_tol = 0,
+                                     const std::vector<double>& first_shifts = {});
 
 /// A coarse level of a nested family of linear-element meshes: the node list (indices into
 /// the base mesh, including a Dirichlet end whose unknown is removed) and its pencil.

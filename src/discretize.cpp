@@ -122,33 +122,40 @@ WeakForm make_stellar_form(const Structure& s, SurfaceCondition surface,
   std::vector<double> x(node_r.size(), 1.0); // the surface exactly at x = 1
   for (std::size_t i = 0; i + 1 < x.size(); ++i) x[i] = node_r[i] / R;
   WeakForm f = quadrature_layout(std::move(x), default_quadrature_points);
-  const auto q = static_cast<std::size_t>(default_quadrature_points);
-  // Every base interval lies inside one interval of `coefficients_from` (same radii, a subset
-  // of the nodes): found once per base interval by its midpoint, marching outward.
-  const std::vector<double>* from_r = coefficients_from ? &coefficients_from->node_r() : nullptr;
-  std::size_t hint = 0;
-  for (std::size_t i = 0; i < f.interval_count(); ++i) {
-    const double xi = f.x[i], hx = f.x[i + 1] - xi;
-    const double r0 = node_r[i], hr = node_r[i + 1] - r0;
-    std::size_t k = 0;
-    double k0 = 0, inv_kh = 1;
-    if (from_r) {
-      k = coefficients_from->interval_of(r0 + 0.5 * hr, &hint);
-      k0 = (*from_r)[k];
-      inv_kh = 1.0 / ((*from_r)[k + 1] - k0);
+  constexpr auto q = static_cast<std::size_t>(default_quadrature_points);
+  // The coefficients at point j (interval i, position x) from the structure's values there.
+  auto store = [&](std::size_t j, double xq, const StructureValues& p) {
+    const double P = p.P * inv_P_unit, rho = p.rho * inv_rho_unit, m = p.m * inv_M;
+    const double gp = p.gamma1 * P, x2 = xq * xq;
+    f.a[j] = gp * x2 * x2;
+    f.b[j] = 3.0 * gp * x2 * xq;
+    f.c[j] = 9.0 * gp * x2 - 4.0 * m * rho * xq;
+    f.d[j] = rho * x2 * x2;
+  };
+  if (!coefficients_from) {
+    // The same local coordinates in every interval: loop invariants, so the interpolation
+    // weights at them are computed once.
+    std::array<double, q> tg{};
+    for (std::size_t l = 0; l < q; ++l) tg[l] = f.t[l];
+    for (std::size_t i = 0; i < f.interval_count(); ++i) {
+      const double xi = f.x[i], hx = f.x[i + 1] - xi;
+      for (std::size_t l = 0; l < q; ++l) store(i * q + l, xi + tg[l] * hx, s.values_at(i, tg[l]));
     }
-    for (std::size_t j = i * q; j < (i + 1) * q; ++j) {
-      const double t = f.t[j];
-      const StructureValues p =
-          from_r ? coefficients_from->values_at(k, std::clamp((r0 + t * hr - k0) * inv_kh, 0.0, 1.0))
-                 : s.values_at(i, t);
-      const double xq = xi + t * hx;
-      const double P = p.P * inv_P_unit, rho = p.rho * inv_rho_unit, m = p.m * inv_M;
-      const double gp = p.gamma1 * P, x2 = xq * xq;
-      f.a[j] = gp * x2 * x2;
-      f.b[j] = 3.0 * gp * x2 * xq;
-      f.c[j] = 9.0 * gp * x2 - 4.0 * m * rho * xq;
-      f.d[j] = rho * x2 * x2;
+  } else {
+    // Every base interval lies inside one interval of `coefficients_from` (same radii, a
+    // subset of the nodes): found once per base interval by its midpoint, marching outward.
+    const Structure& from = *coefficients_from;
+    const std::vector<double>& from_r = from.node_r();
+    std::size_t hint = 0;
+    for (std::size_t i = 0; i < f.interval_count(); ++i) {
+      const double xi = f.x[i], hx = f.x[i + 1] - xi;
+      const double r0 = node_r[i], hr = node_r[i + 1] - r0;
+      const std::size_t k = from.interval_of(r0 + 0.5 * hr, &hint);
+      const double k0 = from_r[k], inv_kh = 1.0 / (from_r[k + 1] - k0);
+      for (std::size_t j = i * q; j < (i + 1) * q; ++j) {
+        const double t = f.t[j];
+        store(j, xi + t * hx, from.values_at(k, std::clamp((r0 + t * hr - k0) * inv_kh, 0.0, 1.0)));
+      }
     }
   }
   if (surface == SurfaceCondition::regular) {

@@ -199,15 +199,14 @@ std::vector<std::size_t> every_other_node(std::size_t last, const std::vector<bo
 std::optional<Structure> every_other_row(const Structure& s) {
   const StellarModel& t = s.table();
   const std::vector<std::size_t> keep_nodes = every_other_node(s.interval_count(), s.discontinuity());
-  std::vector<bool> keep_node(s.node_r().size(), false);
-  for (const std::size_t k : keep_nodes) keep_node[k] = true;
-  // Rows map to nodes in order: a repeated radius gives two rows on one node.
+  // Rows map to nodes in order: a repeated radius gives two rows on one node. Walk both.
   std::vector<std::size_t> rows;
   rows.reserve(keep_nodes.size() + 16);
-  std::size_t node = 0;
+  std::size_t node = 0, next = 0; // keep_nodes[next] is the first kept node >= node
   for (std::size_t j = 0; j < t.size(); ++j) {
     if (j > 0 && t.r[j] != t.r[j - 1]) ++node;
-    if (keep_node[node]) rows.push_back(j);
+    while (next < keep_nodes.size() && keep_nodes[next] < node) ++next;
+    if (next < keep_nodes.size() && keep_nodes[next] == node) rows.push_back(j);
   }
   if (rows.size() < StellarModel::min_points) return std::nullopt;
   StellarModel c;

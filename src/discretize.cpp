@@ -142,8 +142,9 @@ WeakForm make_stellar_form(const Structure& s, SurfaceCondition surface,
       for (std::size_t l = 0; l < q; ++l) store(i * q + l, xi + tg[l] * hx, s.values_at(i, tg[l]));
     }
   } else {
-    // Every base interval lies inside one interval of `coefficients_from` (same radii, a
-    // subset of the nodes): found once per base interval by its midpoint, marching outward.
+    // When the base mesh nests in `coefficients_from`'s (every_other_row), each base interval
+    // lies inside one of its intervals: found once per base interval by the midpoint, marching
+    // outward. A point outside it (meshes that do not nest) is looked up on its own.
     const Structure& from = *coefficients_from;
     const std::vector<double>& from_r = from.node_r();
     std::size_t hint = 0;
@@ -153,8 +154,15 @@ WeakForm make_stellar_form(const Structure& s, SurfaceCondition surface,
       const std::size_t k = from.interval_of(r0 + 0.5 * hr, &hint);
       const double k0 = from_r[k], inv_kh = 1.0 / (from_r[k + 1] - k0);
       for (std::size_t j = i * q; j < (i + 1) * q; ++j) {
-        const double t = f.t[j];
-        store(j, xi + t * hx, from.values_at(k, std::clamp((r0 + t * hr - k0) * inv_kh, 0.0, 1.0)));
+        const double t = f.t[j], r = r0 + t * hr;
+        double u = (r - k0) * inv_kh;
+        std::size_t kk = k;
+        if (!(u >= 0.0 && u <= 1.0)) {
+          std::size_t point_hint = k;
+          kk = from.interval_of(r, &point_hint);
+          u = (r - from_r[kk]) / (from_r[kk + 1] - from_r[kk]);
+        }
+        store(j, xi + t * hx, from.values_at(kk, std::clamp(u, 0.0, 1.0)));
       }
     }
   }

@@ -125,24 +125,31 @@ TEST_CASE("stellar form of the uniform sphere: the analytic coefficients at the 
 
 TEST_CASE("form from another structure: its coefficients at the same radii") {
   // The documented meaning of make_stellar_form(s, surface, &other): the coefficients come
-  // from other.at_radius(r) at the quadrature radii of s. Checked on an n = 3 polytrope
-  // with every other row as `other` (the interpolation-error estimate's use).
+  // from other.at_radius(r) at the quadrature radii of s. Checked on an n = 3 polytrope with
+  // every other row as `other` (the interpolation-error estimate's use: nested meshes) and
+  // with the same polytrope on a different number of points (meshes that do not nest).
   GeneratorOptions g;
   g.points = 300;
   const Structure s(make_polytrope(3.0, g));
   const auto half = every_other_row(s);
   REQUIRE(half.has_value());
-  const WeakForm f = make_stellar_form(s, SurfaceCondition::regular, &*half);
-  const double R = s.radius(), M = s.mass();
-  const double P_unit = constants::G * M * M / (R * R * R * R), rho_unit = M / (R * R * R);
-  for (std::size_t j = 0; j < f.a.size(); ++j) {
-    const std::size_t i = j / 3;
-    const double r = s.node_r()[i] + f.t[j] * (s.node_r()[i + 1] - s.node_r()[i]);
-    const StructurePoint p = half->at_radius(r);
-    const double x = f.x[i] + f.t[j] * (f.x[i + 1] - f.x[i]);
-    const double a = p.gamma1 * p.P / P_unit * std::pow(x, 4), d = p.rho / rho_unit * std::pow(x, 4);
-    CHECK(f.a[j] == doctest::Approx(a).epsilon(1e-13));
-    CHECK(f.d[j] == doctest::Approx(d).epsilon(1e-13));
+  g.points = 217;
+  const Structure other(make_polytrope(3.0, g));
+  REQUIRE(other.radius() == s.radius());
+  for (const Structure* from : {&*half, &other}) {
+    const WeakForm f = make_stellar_form(s, SurfaceCondition::regular, from);
+    const double R = s.radius(), M = s.mass();
+    const double P_unit = constants::G * M * M / (R * R * R * R), rho_unit = M / (R * R * R);
+    for (std::size_t j = 0; j < f.a.size(); ++j) {
+      const std::size_t i = j / 3;
+      const double r = s.node_r()[i] + f.t[j] * (s.node_r()[i + 1] - s.node_r()[i]);
+      const StructurePoint p = from->at_radius(r);
+      const double x = f.x[i] + f.t[j] * (f.x[i + 1] - f.x[i]);
+      const double a = p.gamma1 * p.P / P_unit * std::pow(x, 4);
+      const double d = p.rho / rho_unit * std::pow(x, 4);
+      CHECK(f.a[j] == doctest::Approx(a).epsilon(1e-13));
+      CHECK(f.d[j] == doctest::Approx(d).epsilon(1e-13));
+    }
   }
 }
 

@@ -1,5 +1,6 @@
 // Benchmark of the stages between a model table and the eigen-solve (built, not run by ctest):
-//   cmake --build build --target bench_bench_prepare && build/tests/bench_bench_prepare [POINTS=2000] [BATCHES=31]
+//   cmake --build build --target bench_bench_prepare
+//   build/tests/bench_bench_prepare [POINTS=2000] [BATCHES=31]
 // On an n = 3 polytrope of POINTS points (make_polytrope), the microseconds per call of each
 // stage solve_modes runs once per model:
 //   structure        Structure s(model)                       (validation included)
@@ -8,7 +9,8 @@
 //   form_from_half   make_stellar_form(s, regular, &half)     (interpolation-error estimate)
 //   assemble_fine    assemble(form, all nodes)
 //   assemble_coarse  assemble(form, every other node)
-//   all              the six above in a row
+//   all              what solve_modes runs of these, in a row: structure, form,
+//                    every_other_row, form from it, three pencils
 // Each stage runs BATCHES batches of calls (enough calls for ~2 ms per batch); the figures are
 // the median and the minimum over the batches of thread CPU time per call, so other work on
 // a shared machine disturbs them little. Results: docs/performance.md.

@@ -7,7 +7,6 @@
 #include "radmode/error.hpp"
 
 #include <algorithm>
-#include <array>
 #include <cerrno>
 #include <cfloat>
 #include <charconv>

@@ -2,15 +2,15 @@
 //   cmake --build build --target bench_bench_prepare
 //   build/tests/bench_bench_prepare [POINTS=2000] [BATCHES=31]
 // On an n = 3 polytrope of POINTS points (make_polytrope), the microseconds per call of each
-// stage solve_modes runs once per model:
+// stage between the model table and the eigen-solve:
 //   structure        Structure s(model)                       (validation included)
 //   form             make_stellar_form(s, regular)
 //   every_other_row  every_other_row(s)
 //   form_from_half   make_stellar_form(s, regular, &half)     (interpolation-error estimate)
 //   assemble_fine    assemble(form, all nodes)
 //   assemble_coarse  assemble(form, every other node)
-//   all              what solve_modes runs of these, in a row: structure, form,
-//                    every_other_row, form from it, three pencils
+//   all              all of them in a row: structure, form, every_other_row, form from
+//                    it, three pencils (fine and coarse from the form, fine from the other)
 // Each stage runs BATCHES batches of calls (enough calls for ~2 ms per batch); the figures are
 // the median and the minimum over the batches of thread CPU time per call, so other work on
 // a shared machine disturbs them little. Results: docs/performance.md.

@@ -227,11 +227,9 @@ struct Engine {
   /// Fills lambda (Rayleigh quotient), M-normalized x, residual, and (with_index) index and
   /// multiplicity by inertia.
   PencilEigenpair finish(std::vector<double> x, bool with_index = true) {
-    PencilEigenpair e;
-    e.x = std::move(x);
-    const double xmx = set_residual(e, true);
-    const double norm = 1.0 / std::sqrt(xmx);
-    for (double& v : e.x) v *= norm;
+    std::vector<std::vector<double>> one;
+    one.push_back(std::move(x));
+    PencilEigenpair e = std::move(finish_all(std::move(one), false).front());
     if (!with_index || !std::isfinite(e.lambda)) return e; // index -1: rejected by the caller
     const double margin = count_margin(e.lambda, scale);
     e.index = count(e.lambda - margin);
@@ -239,19 +237,29 @@ struct Engine {
     return e;
   }
 
-  /// finish() for several vectors, with the inertia counts of all of them done together.
-  std::vector<PencilEigenpair> finish_all(std::vector<std::vector<double>> xs) {
-    std::vector<PencilEigenpair> out;
-    out.reserve(xs.size());
-    std::vector<double> shifts;
-    for (auto& x : xs) {
-      out.push_back(finish(std::move(x), false));
-      const double l = out.back().lambda;
-      if (!std::isfinite(l)) continue;
-      const double margin = count_margin(l, scale);
-      shifts.push_back(l - margin);
-      shifts.push_back(l + margin);
+  /// finish() for several vectors, with the inertia counts of all of them done together
+  /// (with_index). lambda_ref is raised to the largest |lambda| of the set first, so that the
+  /// residuals are final.
+  std::vector<PencilEigenpair> finish_all(std::vector<std::vector<double>> xs, bool with_index = true) {
+    std::vector<PencilEigenpair> out(xs.size());
+    std::vector<double> xmx(xs.size());
+    for (std::size_t i = 0; i < xs.size(); ++i) {
+      out[i].x = std::move(xs[i]);
+      xmx[i] = set_quotient(out[i]);
+      if (std::isfinite(out[i].lambda)) lambda_ref = std::max(lambda_ref, std::abs(out[i].lambda));
     }
+    std::vector<double> shifts;
+    for (std::size_t i = 0; i < out.size(); ++i) {
+      PencilEigenpair& e = out[i];
+      set_residual(e);
+      const double norm = 1.0 / std::sqrt(xmx[i]);
+      for (double& v : e.x) v *= norm;
+      if (!std::isfinite(e.lambda)) continue;
+      const double margin = count_margin(e.lambda, scale);
+      shifts.push_back(e.lambda - margin);
+      shifts.push_back(e.lambda + margin);
+    }
+    if (!with_index) return out;
     const std::vector<int> c = detail::inertia_below_many(p, shifts);
     counts += static_cast<int>(shifts.size());
     std::size_t k = 0;
@@ -264,48 +272,50 @@ struct Engine {
     return out;
   }
 
-  /// Residual of (e.lambda, e.x) normalized with the current lambda_ref (scale-free in x);
-  /// with `quotient`, e.lambda is first set to the Rayleigh quotient x^T K x / x^T M x, summed
-  /// as x . (K x): the row sums of K x cancel locally, where sum K_ij x_i x_j term by term
-  /// would lose ~1e-9 relative to cancellation on a 2,000-point mesh. Returns x^T M x.
-  double set_residual(PencilEigenpair& e, bool quotient = false) const {
+  /// (K x)_j and (M x)_j.
+  void products(const double* x, std::size_t j, double& kx, double& mx) const {
     const std::size_t m = p.size();
-    const double* const x = e.x.data();
-    // (K x)_j and (M x)_j on the fly: two passes, no work arrays.
-    auto products = [&](std::size_t j, double& kx, double& mx) {
-      kx = p.k_diag[j] * x[j];
-      mx = p.m_diag[j] * x[j];
-      if (j > 0) {
-        kx += p.k_off[j - 1] * x[j - 1];
-        mx += p.m_off[j - 1] * x[j - 1];
-      }
-      if (j + 1 < m) {
-        kx += p.k_off[j] * x[j + 1];
-        mx += p.m_off[j] * x[j + 1];
-      }
-    };
-    double xkx = 0, xmx = 0, k2 = 0, m2 = 0;
-    for (std::size_t j = 0; j < m; ++j) {
-      double kx, mx;
-      products(j, kx, mx);
-      xkx += x[j] * kx;
-      xmx += x[j] * mx;
-      k2 += kx * kx;
-      m2 += mx * mx;
+    kx = p.k_diag[j] * x[j];
+    mx = p.m_diag[j] * x[j];
+    if (j > 0) {
+      kx += p.k_off[j - 1] * x[j - 1];
+      mx += p.m_off[j - 1] * x[j - 1];
     }
-    if (quotient) e.lambda = xkx / xmx;
-    double r2 = 0;
-    for (std::size_t j = 0; j < m; ++j) {
-      double kx, mx;
-      products(j, kx, mx);
-      const double r = kx - e.lambda * mx;
-      r2 += r * r;
+    if (j + 1 < m) {
+      kx += p.k_off[j] * x[j + 1];
+      mx += p.m_off[j] * x[j + 1];
     }
-    const double denom = std::sqrt(k2) + std::max(std::abs(e.lambda), lambda_ref) * std::sqrt(m2);
-    e.residual = denom > 0 ? std::sqrt(r2) / denom : 0.0;
+  }
+
+  /// e.lambda = x^T K x / x^T M x, summed as x . (K x): the row sums of K x cancel locally,
+  /// where sum K_ij x_i x_j term by term would lose ~1e-9 relative to cancellation on a
+  /// 2,000-point mesh. Returns x^T M x.
+  double set_quotient(PencilEigenpair& e) const {
+    double xkx = 0, xmx = 0;
+    for (std::size_t j = 0; j < p.size(); ++j) {
+      double kx, mx;
+      products(e.x.data(), j, kx, mx);
+      xkx += e.x[j] * kx;
+      xmx += e.x[j] * mx;
+    }
+    e.lambda = xkx / xmx;
     return xmx;
   }
 
+  /// Residual of (e.lambda, e.x) normalized with the current lambda_ref (scale-free in x).
+  void set_residual(PencilEigenpair& e) const {
+    double r2 = 0, k2 = 0, m2 = 0;
+    for (std::size_t j = 0; j < p.size(); ++j) {
+      double kx, mx;
+      products(e.x.data(), j, kx, mx);
+      const double r = kx - e.lambda * mx;
+      r2 += r * r;
+      k2 += kx * kx;
+      m2 += mx * mx;
+    }
+    const double denom = std::sqrt(k2) + std::max(std::abs(e.lambda), lambda_ref) * std::sqrt(m2);
+    e.residual = denom > 0 ? std::sqrt(r2) / denom : 0.0;
+  }
 
   /// Inverse iteration at shift mu from a start vector; a few steps suffice when mu is close.
   PencilEigenpair inverse_iteration(double mu, std::vector<double> x) {
@@ -836,6 +846,7 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
     if (const auto half = every_other_row(s))
       dlambda = interpolation_change(s, *half, coarse->nodes, form, pf, sf.pairs);
 
+  std::vector<double> errors; // per pair, pencil units
   for (auto& e : sf.pairs) {
     ModeSolution m;
     m.trusted = true;
@@ -898,24 +909,41 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
       add_flag(m, "inertia sees " + std::to_string(m.inertia_multiplicity) +
                       " eigenvalues at this omega^2");
     if (!(m.residual <= 1e-8)) add_flag(m, "large residual");
-    // Is the eigenvalue isolated within ten times its error estimate? Neighbours solved
-    // together are compared directly; beyond the ends of the set, inertia counts tell.
-    const std::size_t at = static_cast<std::size_t>(&e - sf.pairs.data());
+    errors.push_back(err);
+    out.modes.push_back(std::move(m));
+  }
+
+  // Is each eigenvalue isolated within ten times its error estimate? Neighbours solved
+  // together are compared directly; beyond the ends of the set, inertia counts tell (the counts
+  // for all ends done together).
+  const std::string crowded_flag = "error estimate large relative to the mode spacing";
+  std::vector<double> shifts;
+  std::vector<int> expected;
+  std::vector<std::size_t> owner;
+  for (std::size_t at = 0; at < sf.pairs.size(); ++at) {
+    const PencilEigenpair& e = sf.pairs[at];
+    const double err = errors[at];
     const bool below_known = at > 0 && sf.pairs[at - 1].index == e.index - 1;
     const bool above_known = at + 1 < sf.pairs.size() && sf.pairs[at + 1].index == e.index + 1;
     bool crowded = false;
-    if (below_known) crowded = crowded || sf.pairs[at - 1].lambda >= e.lambda - 10 * err;
-    else crowded = crowded || eng.count(e.lambda - 10 * err) != e.index;
+    if (below_known) crowded = sf.pairs[at - 1].lambda >= e.lambda - 10 * err;
+    else shifts.push_back(e.lambda - 10 * err), expected.push_back(e.index), owner.push_back(at);
     if (above_known) crowded = crowded || sf.pairs[at + 1].lambda <= e.lambda + 10 * err;
-    else crowded = crowded || eng.count(e.lambda + 10 * err) != e.index + 1;
-    if (crowded) add_flag(m, "error estimate large relative to the mode spacing");
+    else shifts.push_back(e.lambda + 10 * err), expected.push_back(e.index + 1), owner.push_back(at);
+    if (crowded) add_flag(out.modes[at], crowded_flag);
+  }
+  const std::vector<int> counted = detail::inertia_below_many(pf, shifts);
+  for (std::size_t k = 0; k < shifts.size(); ++k) {
+    ModeSolution& m = out.modes[owner[k]];
+    if (counted[k] != expected[k] && m.flag.find(crowded_flag) == std::string::npos)
+      add_flag(m, crowded_flag);
+  }
+  for (ModeSolution& m : out.modes)
     if (!std::isfinite(m.omega2) || !std::isfinite(m.error_estimate)) {
       add_flag(m, "non-finite result");
       m.omega2 = m.omega2_fine;
       m.error_estimate = std::numeric_limits<double>::max();
     }
-    out.modes.push_back(std::move(m));
-  }
   return out;
 }
 

@@ -307,73 +307,56 @@ MeshLevel coarsen(const std::vector<std::size_t>& fn, bool fix_first,
                   const std::vector<bool>& keep_base) {
   std::vector<bool> keep(fn.size(), false);
   for (std::size_t i = 0; i < fn.size(); ++i) keep[i] = fn[i] < keep_base.size() && keep_base[fn[i]];
+  const std::vector<std::size_t> pos = every_other_node(fn.size() - 1, keep); // in fn
   MeshLevel c;
   c.fix_first = fix_first;
-  for (const std::size_t i : every_other_node(fn.size() - 1, keep)) c.nodes.push_back(fn[i]);
-  const std::size_t first = c.fix_first ? 1 : 0; // first coarse node with an unknown
+  c.nodes.reserve(pos.size());
+  for (const std::size_t i : pos) c.nodes.push_back(fn[i]);
+  const std::size_t first = fix_first ? 1 : 0; // first node (of either list) with an unknown
   const std::size_t nc = c.nodes.size() - first;
   if (nc < 2) throw UsageError("coarse mesh: fewer than 2 unknowns remain");
+  if (pf.size() + first != fn.size()) throw UsageError("coarse mesh: fine pencil and node list differ");
 
-  // Interpolation weights: fine unknown j = sum over its (at most two) coarse parents.
-  // Parents that are a removed Dirichlet node carry u = 0 and are dropped.
-  struct Parents {
-    std::size_t unknown[2];
-    double weight[2];
-    int count;
-  };
-  std::vector<Parents> parents(pf.size());
-  std::size_t k = 0; // coarse element [k, k + 1] (node-list positions)
-  for (std::size_t j = 0; j < pf.size(); ++j) {
-    const std::size_t b = pf.node[j];
-    while (k + 2 < c.nodes.size() && c.nodes[k + 1] <= b) ++k;
-    Parents par{{0, 0}, {0, 0}, 0};
-    auto add = [&](std::size_t pos, double w) {
-      if (w == 0.0 || pos < first) return;
-      par.unknown[par.count] = pos - first;
-      par.weight[par.count] = w;
-      ++par.count;
-    };
-    if (c.nodes[k] == b) {
-      add(k, 1.0);
-    } else if (k + 1 < c.nodes.size() && c.nodes[k + 1] == b) {
-      add(k + 1, 1.0);
-    } else {
-      const double t = (x[b] - x[c.nodes[k]]) / (x[c.nodes[k + 1]] - x[c.nodes[k]]);
-      add(k, 1.0 - t);
-      add(k + 1, t);
-    }
-    parents[j] = par;
-  }
-
+  // Consecutive coarse nodes are either neighbours on the fine list or have one fine node m
+  // between them, interpolated as (1 - t) u_J + t u_{J+1}. With A the fine matrix (entries of
+  // a removed Dirichlet node are 0), P^T A P is, per coarse node J at fine position f with
+  // midpoints m- (weight t- of J) before and m+ (weight 1 - t+ of J) after it,
+  //   A_c(J, J)     = A(f, f) + 2 w- A(m-, f) + w-^2 A(m-, m-) + 2 w+ A(f, m+) + w+^2 A(m+, m+)
+  //   A_c(J, J + 1) = A(f, f+1)                                        (neighbours)
+  //                 = t A(f, m) + t (1 - t) A(m, m) + (1 - t) A(m, f')   (midpoint m)
+  // which equals assembling the coarse elements directly (nested spaces, shared quadrature).
+  auto diag = [&](const std::vector<double>& d, std::size_t i) { return i < first ? 0.0 : d[i - first]; };
+  auto off = [&](const std::vector<double>& o, std::size_t i) { return i < first ? 0.0 : o[i - first]; };
   TridiagonalPencil& pc = c.pencil;
   pc.k_diag.assign(nc, 0.0);
   pc.m_diag.assign(nc, 0.0);
   pc.k_off.assign(nc - 1, 0.0);
   pc.m_off.assign(nc - 1, 0.0);
   pc.node.assign(c.nodes.begin() + static_cast<std::ptrdiff_t>(first), c.nodes.end());
-  // (P^T A P)_IJ = sum_jk P_jI A_jk P_kJ over the tridiagonal pattern of A; keep I <= J.
-  auto accumulate = [&](std::size_t j, std::size_t kk, double a_k, double a_m) {
-    const Parents& pj = parents[j];
-    const Parents& pk = parents[kk];
-    for (int u = 0; u < pj.count; ++u)
-      for (int v = 0; v < pk.count; ++v) {
-        const std::size_t I = pj.unknown[u], J = pk.unknown[v];
-        const double w = pj.weight[u] * pk.weight[v];
-        if (I == J) {
-          pc.k_diag[I] += w * a_k;
-          pc.m_diag[I] += w * a_m;
-        } else if (J == I + 1) {
-          pc.k_off[I] += w * a_k;
-          pc.m_off[I] += w * a_m;
-        }
-      }
-  };
-  for (std::size_t j = 0; j < pf.size(); ++j) {
-    accumulate(j, j, pf.k_diag[j], pf.m_diag[j]);
-    if (j + 1 < pf.size()) {
-      accumulate(j, j + 1, pf.k_off[j], pf.m_off[j]);
-      accumulate(j + 1, j, pf.k_off[j], pf.m_off[j]);
+  const std::size_t last = pos.size() - 1;
+  for (std::size_t J = first; J <= last; ++J) {
+    const std::size_t f = pos[J];
+    double kd = diag(pf.k_diag, f), md = diag(pf.m_diag, f);
+    if (J > 0 && pos[J - 1] + 2 == f) { // midpoint before
+      const std::size_t m = f - 1;
+      const double w = (x[fn[m]] - x[fn[pos[J - 1]]]) / (x[fn[f]] - x[fn[pos[J - 1]]]);
+      kd += 2 * w * off(pf.k_off, m) + w * w * diag(pf.k_diag, m);
+      md += 2 * w * off(pf.m_off, m) + w * w * diag(pf.m_diag, m);
     }
+    if (J < last && pos[J + 1] == f + 2) { // midpoint after
+      const std::size_t m = f + 1;
+      const double w = (x[fn[pos[J + 1]]] - x[fn[m]]) / (x[fn[pos[J + 1]]] - x[fn[f]]);
+      kd += 2 * w * off(pf.k_off, f) + w * w * diag(pf.k_diag, m);
+      md += 2 * w * off(pf.m_off, f) + w * w * diag(pf.m_diag, m);
+      const double t = 1.0 - w;
+      pc.k_off[J - first] = t * off(pf.k_off, f) + t * w * diag(pf.k_diag, m) + w * off(pf.k_off, m);
+      pc.m_off[J - first] = t * off(pf.m_off, f) + t * w * diag(pf.m_diag, m) + w * off(pf.m_off, m);
+    } else if (J < last) { // neighbours
+      pc.k_off[J - first] = off(pf.k_off, f);
+      pc.m_off[J - first] = off(pf.m_off, f);
+    }
+    pc.k_diag[J - first] = kd;
+    pc.m_diag[J - first] = md;
   }
   return c;
 }

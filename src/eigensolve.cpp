@@ -737,9 +737,8 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
 
   // Richardson partner mesh: every other node (discontinuities kept), its pencil the Galerkin
   // restriction of the fine one (identical to assembling it, see pencil_block.hpp).
-  std::optional<detail::MeshLevel> coarse;
-  if (every_other_node(form, s.discontinuity()).size() - (rigid ? 1 : 0) >= 2)
-    coarse = detail::coarsen(fine.nodes, rigid, pf, form.x, s.discontinuity());
+  const std::optional<detail::MeshLevel> coarse =
+      detail::coarsen(fine.nodes, rigid, pf, form.x, s.discontinuity());
   const TridiagonalPencil* pc = coarse ? &coarse->pencil : nullptr;
 
   // Nested iteration over a family of meshes, each every other node of the one above:
@@ -762,7 +761,10 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
     while (true) {
       const detail::MeshLevel& top = lower.empty() ? *coarse : lower.back();
       if (top.pencil.size() < 2 * min_unknowns) break;
-      lower.push_back(detail::coarsen(top, form.x, s.discontinuity()));
+      std::optional<detail::MeshLevel> next = detail::coarsen(top, form.x, s.discontinuity());
+      // (Kept discontinuities can stop a mesh from shrinking: then it is the coarsest.)
+      if (!next || 4 * next->pencil.size() > 3 * top.pencil.size()) break;
+      lower.push_back(std::move(*next));
     }
     const TridiagonalPencil& bottom = lower.empty() ? *pc : lower.back().pencil;
     PencilSpectrum sb = solve_pencil(bottom, by_index);

@@ -302,9 +302,9 @@ std::vector<double> rayleigh_iterate(const TridiagonalPencil& p,
   return rho;
 }
 
-MeshLevel coarsen(const std::vector<std::size_t>& fn, bool fix_first,
-                  const TridiagonalPencil& pf, const std::vector<double>& x,
-                  const std::vector<bool>& keep_base) {
+std::optional<MeshLevel> coarsen(const std::vector<std::size_t>& fn, bool fix_first,
+                                 const TridiagonalPencil& pf, const std::vector<double>& x,
+                                 const std::vector<bool>& keep_base) {
   std::vector<bool> keep(fn.size(), false);
   for (std::size_t i = 0; i < fn.size(); ++i) keep[i] = fn[i] < keep_base.size() && keep_base[fn[i]];
   const std::vector<std::size_t> pos = every_other_node(fn.size() - 1, keep); // in fn
@@ -314,7 +314,7 @@ MeshLevel coarsen(const std::vector<std::size_t>& fn, bool fix_first,
   for (const std::size_t i : pos) c.nodes.push_back(fn[i]);
   const std::size_t first = fix_first ? 1 : 0; // first node (of either list) with an unknown
   const std::size_t nc = c.nodes.size() - first;
-  if (nc < 2) throw UsageError("coarse mesh: fewer than 2 unknowns remain");
+  if (nc < 2) return std::nullopt;
   if (pf.size() + first != fn.size()) throw UsageError("coarse mesh: fine pencil and node list differ");
 
   // Consecutive coarse nodes are either neighbours on the fine list or have one fine node m

@@ -11,6 +11,7 @@
 #include "radmode/discretize.hpp"
 
 #include <cstddef>
+#include <optional>
 #include <vector>
 
 namespace radmode::detail {
@@ -45,12 +46,12 @@ struct MeshLevel {
 /// P^T K P, P^T M P, P the linear interpolation from the coarse to the fine level (x: base
 /// mesh coordinates). For nested linear elements with one shared quadrature this is exactly
 /// the pencil assemble() would build on the coarse mesh, at O(N) cost without re-reading the
-/// quadrature data. Requires at least 2 coarse unknowns.
-MeshLevel coarsen(const std::vector<std::size_t>& fine_nodes, bool fix_first,
-                  const TridiagonalPencil& fine_pencil, const std::vector<double>& x,
-                  const std::vector<bool>& keep_base);
-inline MeshLevel coarsen(const MeshLevel& fine, const std::vector<double>& x,
-                         const std::vector<bool>& keep_base) {
+/// quadrature data. nullopt when fewer than 2 coarse unknowns would remain.
+std::optional<MeshLevel> coarsen(const std::vector<std::size_t>& fine_nodes, bool fix_first,
+                                 const TridiagonalPencil& fine_pencil, const std::vector<double>& x,
+                                 const std::vector<bool>& keep_base);
+inline std::optional<MeshLevel> coarsen(const MeshLevel& fine, const std::vector<double>& x,
+                                        const std::vector<bool>& keep_base) {
   return coarsen(fine.nodes, fine.fix_first, fine.pencil, x, keep_base);
 }
 

@@ -141,6 +141,9 @@ double spectrum_scale(const TridiagonalPencil& p) {
 /// trusted to separate it from its neighbours (round-off of the counts and of lambda).
 double count_margin(double lambda, double scale) { return 1e-9 * std::abs(lambda) + 64 * eps * scale; }
 
+/// Fewest unknowns of the coarsest mesh of the nested solve for eigenvalue indices below i1.
+std::size_t nested_min_unknowns(int i1) { return static_cast<std::size_t>(std::max(4 * i1 + 40, 100)); }
+
 struct Engine {
   const TridiagonalPencil& p;
   double scale;
@@ -474,6 +477,107 @@ std::vector<double> prolong(const std::vector<double>& x, const TridiagonalPenci
   return out;
 }
 
+/// Eigenvalue estimates on the next finer mesh from those on two successive coarser ones
+/// (`coarse`, and `coarser` with twice its spacing), by the h^2 law of linear elements:
+/// lambda ~ coarse - (coarser - coarse)/4. Used only as the shift of the first Rayleigh quotient
+/// step, so an estimate is dropped (NaN) unless the coarser value lies above the coarse one (as
+/// Courant-Fischer requires of nested meshes) and the correction stays under a quarter of the
+/// distance to the neighbouring eigenvalues. Empty when `coarser` is.
+std::vector<double> predict_finer(const std::vector<double>& coarse,
+                                  const std::vector<double>& coarser) {
+  std::vector<double> out;
+  if (coarser.size() != coarse.size()) return out;
+  const double nan = std::numeric_limits<double>::quiet_NaN();
+  for (std::size_t i = 0; i < coarse.size(); ++i) {
+    const double step = (coarser[i] - coarse[i]) / 4.0;
+    double gap = std::numeric_limits<double>::infinity();
+    if (i > 0) gap = std::min(gap, coarse[i] - coarse[i - 1]);
+    if (i + 1 < coarse.size()) gap = std::min(gap, coarse[i + 1] - coarse[i]);
+    const bool usable = std::isfinite(step) && step >= 0 && step < 0.25 * gap;
+    out.push_back(usable ? coarse[i] - step : nan);
+  }
+  return out;
+}
+
+/// Nested iteration over a family of meshes, each every other node of the one above (pencils
+/// by Galerkin restriction, detail::coarsen): Spectra shift-invert Lanczos on the coarsest,
+/// then Rayleigh quotient iteration on each finer mesh from the prolonged eigenvectors of the
+/// one below, up to `coarse` (every other node of the fine mesh) and the fine pencil `pf`
+/// itself. Levels below `coarse` only supply start vectors; `coarse` and `pf` are verified by
+/// inertia (refine_from). x: base-mesh coordinates; keep: base nodes every level keeps.
+/// Returns the spectra of [i0, i1) on pf and on coarse, or nullopt when a stage failed (the
+/// caller then solves pf directly).
+std::optional<std::pair<PencilSpectrum, PencilSpectrum>>
+nested_solve(const TridiagonalPencil& pf, const detail::MeshLevel& coarse,
+             const std::vector<double>& x, const std::vector<bool>& keep, int i0, int i1) {
+  const TridiagonalPencil* pc = &coarse.pencil;
+  PencilRequest by_index;
+  by_index.first = i0;
+  by_index.count = i1 - i0;
+  // Lower levels while they keep at least nested_min_unknowns (enough nodes per wavelength
+  // for good start vectors).
+  const std::size_t min_unknowns = nested_min_unknowns(i1);
+  std::vector<detail::MeshLevel> lower;
+  while (true) {
+    const detail::MeshLevel& top = lower.empty() ? coarse : lower.back();
+    if (top.pencil.size() < 2 * min_unknowns) break;
+    std::optional<detail::MeshLevel> next = detail::coarsen(top, x, keep);
+    // (Kept discontinuities can stop a mesh from shrinking: then it is the coarsest.)
+    if (!next || 4 * next->pencil.size() > 3 * top.pencil.size()) break;
+    lower.push_back(std::move(*next));
+  }
+  const TridiagonalPencil& bottom = lower.empty() ? *pc : lower.back().pencil;
+  PencilSpectrum sb = solve_pencil(bottom, by_index);
+  if (sb.status != SolveStatus::ok || static_cast<int>(sb.pairs.size()) != i1 - i0) return std::nullopt;
+  std::vector<std::vector<double>> xs;
+  xs.reserve(sb.pairs.size());
+  // Eigenvalues on the last two meshes climbed: the first shift on the next one is
+  // extrapolated from them (predict_finer).
+  std::vector<double> lambda_coarser, lambda_coarse;
+  for (auto& c : sb.pairs) {
+    xs.push_back(std::move(c.x));
+    lambda_coarse.push_back(c.lambda);
+  }
+  auto climbed = [&](std::vector<double> lambdas) {
+    lambda_coarser = std::move(lambda_coarse);
+    lambda_coarse = std::move(lambdas);
+  };
+  // Up through the lower levels: one Rayleigh quotient step each (start vectors only).
+  const TridiagonalPencil* from = &bottom;
+  for (std::size_t l = lower.size(); l-- > 0;) {
+    const TridiagonalPencil& to = l == 0 ? *pc : lower[l - 1].pencil;
+    for (auto& v : xs) v = prolong(x, *from, v, to);
+    if (l > 0)
+      climbed(detail::rayleigh_iterate(to, xs, 1, 1, spectrum_scale(to), 0,
+                                       predict_finer(lambda_coarse, lambda_coarser)));
+    from = &to;
+  }
+  PencilSpectrum sc;
+  if (lower.empty()) {
+    sc = std::move(sb);
+  } else {
+    // Its eigenvectors only start the fine mesh's iteration: residual 1e-7 suffices (the
+    // eigenvalues are then exact to round-off, being quadratic in the residual).
+    sc = refine_from(*pc, i0, i1, std::move(xs), 1e-7, predict_finer(lambda_coarse, lambda_coarser));
+    sc.iterations = sb.iterations;
+  }
+  if (sc.status != SolveStatus::ok || static_cast<int>(sc.pairs.size()) != i1 - i0) return std::nullopt;
+  std::vector<std::vector<double>> starts;
+  starts.reserve(sc.pairs.size());
+  std::vector<double> lambdas;
+  for (const auto& c : sc.pairs) {
+    starts.push_back(prolong(x, *pc, c.x, pf));
+    lambdas.push_back(c.lambda);
+  }
+  if (!lower.empty()) climbed(std::move(lambdas));
+  else lambda_coarse = std::move(lambdas);
+  PencilSpectrum sf = refine_from(pf, i0, i1, std::move(starts), 1e-10,
+                                  predict_finer(lambda_coarse, lambda_coarser));
+  sf.iterations = sb.iterations;
+  sf.shift = sb.shift;
+  return std::make_pair(std::move(sf), std::move(sc));
+}
+
 } // namespace
 
 PencilSpectrum solve_pencil(const TridiagonalPencil& p, const PencilRequest& req) {
@@ -512,6 +616,24 @@ PencilSpectrum solve_pencil(const TridiagonalPencil& p, const PencilRequest& req
       i1 = n;
     }
     if (i0 >= i1) return out;
+    // Large pencils: nested iteration over every-other-node meshes of the pencil's own nodes
+    // (coordinates: the node indices; any interpolation gives a valid Galerkin subspace).
+    bool ordered = p.node.size() == p.size();
+    for (std::size_t j = 1; ordered && j < p.node.size(); ++j) ordered = p.node[j] > p.node[j - 1];
+    if (ordered && p.size() >= 4 * nested_min_unknowns(i1)) {
+      std::vector<double> x(p.node.back() + 1);
+      for (std::size_t b = 0; b < x.size(); ++b) x[b] = static_cast<double>(b);
+      const std::optional<detail::MeshLevel> coarse = detail::coarsen(p.node, false, p, x, {});
+      if (coarse && static_cast<int>(coarse->pencil.size()) >= 2 * i1 + 20)
+        if (auto both = nested_solve(p, *coarse, x, {}, i0, i1)) {
+          PencilSpectrum& sf = both->first;
+          if (out.status != SolveStatus::ok) { // fewer_modes, said above
+            sf.status = out.status;
+            sf.message = out.message + (sf.message.empty() ? "" : "; " + sf.message);
+          }
+          return std::move(sf);
+        }
+    }
     const double low = eng.below_lowest();
     if (i0 == 0) {
       sigma = low;
@@ -618,28 +740,6 @@ void add_flag(ModeSolution& m, const std::string& text) {
 
 namespace {
 
-/// Eigenvalue estimates on the next finer mesh from those on two successive coarser ones
-/// (`coarse`, and `coarser` with twice its spacing), by the h^2 law of linear elements:
-/// lambda ~ coarse - (coarser - coarse)/4. Used only as the shift of the first Rayleigh quotient
-/// step, so an estimate is dropped (NaN) unless the coarser value lies above the coarse one (as
-/// Courant-Fischer requires of nested meshes) and the correction stays under a quarter of the
-/// distance to the neighbouring eigenvalues. Empty when `coarser` is.
-std::vector<double> predict_finer(const std::vector<double>& coarse,
-                                  const std::vector<double>& coarser) {
-  std::vector<double> out;
-  if (coarser.size() != coarse.size()) return out;
-  const double nan = std::numeric_limits<double>::quiet_NaN();
-  for (std::size_t i = 0; i < coarse.size(); ++i) {
-    const double step = (coarser[i] - coarse[i]) / 4.0;
-    double gap = std::numeric_limits<double>::infinity();
-    if (i > 0) gap = std::min(gap, coarse[i] - coarse[i - 1]);
-    if (i + 1 < coarse.size()) gap = std::min(gap, coarse[i + 1] - coarse[i]);
-    const bool usable = std::isfinite(step) && step >= 0 && step < 0.25 * gap;
-    out.push_back(usable ? coarse[i] - step : nan);
-  }
-  return out;
-}
-
 /// First-order change of each eigenvalue (pencil units) when the model between its table rows
 /// is interpolated from every other row instead of all rows:
 ///     d lambda = x^T (dK - lambda dM) x / x^T M x,
@@ -741,83 +841,16 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
       detail::coarsen(fine.nodes, rigid, pf, form.x, s.discontinuity());
   const TridiagonalPencil* pc = coarse ? &coarse->pencil : nullptr;
 
-  // Nested iteration over a family of meshes, each every other node of the one above:
-  // Spectra shift-invert Lanczos on the coarsest, then Rayleigh quotient iteration on each
-  // finer mesh from the prolonged eigenvectors of the one below, up to the every-other-node
-  // mesh and the model mesh (both needed for Richardson). Levels below the every-other-node
-  // mesh only supply start vectors; each of the two top levels is verified by inertia. When
-  // the coarse mesh is too small for the request, Spectra runs on the fine mesh directly.
+  // Nested iteration (nested_solve) when the every-other-node mesh is large enough for the
+  // request; otherwise Spectra runs on the fine mesh directly.
   std::optional<PencilSpectrum> sc;
   PencilSpectrum sf;
   bool nested = false;
-  PencilRequest by_index;
-  by_index.first = i0;
-  by_index.count = i1 - i0;
   if (pc && static_cast<int>(pc->size()) >= 2 * i1 + 20) {
-    // Lower levels while they keep at least max(4 i1 + 40, 100) unknowns (enough nodes per
-    // wavelength for good start vectors).
-    const std::size_t min_unknowns = static_cast<std::size_t>(std::max(4 * i1 + 40, 100));
-    std::vector<detail::MeshLevel> lower;
-    while (true) {
-      const detail::MeshLevel& top = lower.empty() ? *coarse : lower.back();
-      if (top.pencil.size() < 2 * min_unknowns) break;
-      std::optional<detail::MeshLevel> next = detail::coarsen(top, form.x, s.discontinuity());
-      // (Kept discontinuities can stop a mesh from shrinking: then it is the coarsest.)
-      if (!next || 4 * next->pencil.size() > 3 * top.pencil.size()) break;
-      lower.push_back(std::move(*next));
-    }
-    const TridiagonalPencil& bottom = lower.empty() ? *pc : lower.back().pencil;
-    PencilSpectrum sb = solve_pencil(bottom, by_index);
-    if (sb.status == SolveStatus::ok && static_cast<int>(sb.pairs.size()) == i1 - i0) {
-      std::vector<std::vector<double>> xs;
-      xs.reserve(sb.pairs.size());
-      // Eigenvalues on the last two meshes climbed: the first shift on the next one is
-      // extrapolated from them (predict_finer).
-      std::vector<double> lambda_coarser, lambda_coarse;
-      for (auto& c : sb.pairs) {
-        xs.push_back(std::move(c.x));
-        lambda_coarse.push_back(c.lambda);
-      }
-      auto climbed = [&](std::vector<double> lambdas) {
-        lambda_coarser = std::move(lambda_coarse);
-        lambda_coarse = std::move(lambdas);
-      };
-      // Up through the lower levels: one Rayleigh quotient step each (start vectors only).
-      const TridiagonalPencil* from = &bottom;
-      for (std::size_t l = lower.size(); l-- > 0;) {
-        const TridiagonalPencil& to = l == 0 ? *pc : lower[l - 1].pencil;
-        for (auto& x : xs) x = prolong(form.x, *from, x, to);
-        if (l > 0)
-          climbed(detail::rayleigh_iterate(to, xs, 1, 1, spectrum_scale(to), 0,
-                                           predict_finer(lambda_coarse, lambda_coarser)));
-        from = &to;
-      }
-      if (lower.empty()) {
-        sc = std::move(sb);
-      } else {
-        // Its eigenvectors only start the fine mesh's iteration: residual 1e-7 suffices (the
-        // eigenvalues are then exact to round-off, being quadratic in the residual).
-        sc = refine_from(*pc, i0, i1, std::move(xs), 1e-7,
-                         predict_finer(lambda_coarse, lambda_coarser));
-        sc->iterations = sb.iterations;
-      }
-      if (sc->status == SolveStatus::ok && static_cast<int>(sc->pairs.size()) == i1 - i0) {
-        std::vector<std::vector<double>> starts;
-        starts.reserve(sc->pairs.size());
-        std::vector<double> lambdas;
-        for (const auto& c : sc->pairs) {
-          starts.push_back(prolong(form.x, *pc, c.x, pf));
-          lambdas.push_back(c.lambda);
-        }
-        if (!lower.empty()) climbed(std::move(lambdas));
-        else lambda_coarse = std::move(lambdas);
-        sf = refine_from(pf, i0, i1, std::move(starts), 1e-9,
-                         predict_finer(lambda_coarse, lambda_coarser));
-        sf.iterations = sb.iterations;
-        nested = true;
-      } else {
-        sc.reset();
-      }
+    if (auto both = nested_solve(pf, *coarse, form.x, s.discontinuity(), i0, i1)) {
+      sf = std::move(both->first);
+      sc = std::move(both->second);
+      nested = true;
     }
   }
   if (!nested) {

@@ -243,18 +243,39 @@ struct Engine {
   /// finish() for several vectors, with the inertia counts of all of them done together
   /// (with_index). lambda_ref is raised to the largest |lambda| of the set first, so that the
   /// residuals are final.
-  std::vector<PencilEigenpair> finish_all(std::vector<std::vector<double>> xs, bool with_index = true) {
+  /// `stats` (optional, one per vector): what Rayleigh quotient iteration last measured of
+  /// each vector; where complete, the quotient and residual are taken from there instead of
+  /// being measured again.
+  std::vector<PencilEigenpair> finish_all(std::vector<std::vector<double>> xs, bool with_index = true,
+                                          const std::vector<detail::RqiStats>* stats = nullptr) {
     std::vector<PencilEigenpair> out(xs.size());
     std::vector<double> xmx(xs.size());
+    auto measured = [&](std::size_t i) {
+      if (!stats || i >= stats->size()) return false;
+      const detail::RqiStats& st = (*stats)[i];
+      return std::isfinite(st.rho) && std::isfinite(st.xmx) && std::isfinite(st.r_norm) &&
+             std::isfinite(st.kx_norm) && std::isfinite(st.mx_norm) && st.xmx > 0;
+    };
     for (std::size_t i = 0; i < xs.size(); ++i) {
       out[i].x = std::move(xs[i]);
-      xmx[i] = set_quotient(out[i]);
+      if (measured(i)) {
+        out[i].lambda = (*stats)[i].rho;
+        xmx[i] = (*stats)[i].xmx;
+      } else {
+        xmx[i] = set_quotient(out[i]);
+      }
       if (std::isfinite(out[i].lambda)) lambda_ref = std::max(lambda_ref, std::abs(out[i].lambda));
     }
     std::vector<double> shifts;
     for (std::size_t i = 0; i < out.size(); ++i) {
       PencilEigenpair& e = out[i];
-      set_residual(e);
+      if (measured(i)) {
+        const detail::RqiStats& st = (*stats)[i];
+        const double denom = st.kx_norm + std::max(std::abs(e.lambda), lambda_ref) * st.mx_norm;
+        e.residual = denom > 0 ? st.r_norm / denom : 0.0;
+      } else {
+        set_residual(e);
+      }
       const double norm = 1.0 / std::sqrt(xmx[i]);
       for (double& v : e.x) v *= norm;
       if (!std::isfinite(e.lambda)) continue;
@@ -442,8 +463,9 @@ PencilSpectrum refine_from(const TridiagonalPencil& p, int i0, int i1,
                            const std::vector<double>& first_shifts) {
   Engine eng(p);
   PencilSpectrum out;
-  detail::rayleigh_iterate(p, starts, 2, 4, eng.scale, residual_tol, first_shifts);
-  finalize(eng, eng.finish_all(std::move(starts)), i0, i1, out);
+  const std::vector<detail::RqiStats> stats =
+      detail::rayleigh_iterate(p, starts, 2, 4, eng.scale, residual_tol, first_shifts);
+  finalize(eng, eng.finish_all(std::move(starts), true, &stats), i0, i1, out);
   return out;
 }
 
@@ -547,9 +569,13 @@ nested_solve(const TridiagonalPencil& pf, const detail::MeshLevel& coarse,
   for (std::size_t l = lower.size(); l-- > 0;) {
     const TridiagonalPencil& to = l == 0 ? *pc : lower[l - 1].pencil;
     for (auto& v : xs) v = prolong(x, *from, v, to);
-    if (l > 0)
-      climbed(detail::rayleigh_iterate(to, xs, 1, 1, spectrum_scale(to), 0,
-                                       predict_finer(lambda_coarse, lambda_coarser)));
+    if (l > 0) {
+      std::vector<double> lambdas;
+      for (const auto& st : detail::rayleigh_iterate(to, xs, 1, 1, spectrum_scale(to), 0,
+                                                     predict_finer(lambda_coarse, lambda_coarser)))
+        lambdas.push_back(st.rho);
+      climbed(std::move(lambdas));
+    }
     from = &to;
   }
   PencilSpectrum sc;

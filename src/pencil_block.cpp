@@ -98,9 +98,10 @@ public:
   /// rho[b]: the quotient of xs[b] (NaN: computed here); on return the quotient of the new
   /// vector, and res[b] its residual (when `residual`), or unchanged with ok[b] = false when
   /// the step gave a zero or non-finite vector (xs[b] is then left as it was).
-  /// `given`: shifts to use instead of the quotients (NaN: the quotient).
+  /// `given`: shifts to use instead of the quotients (NaN: the quotient). `stats` receives
+  /// the measurements of the new vectors (res: their relative residuals).
   void run(std::vector<double>* const* xs, const double* given, double* rho, bool residual,
-           double* res, bool* ok) {
+           double* res, bool* ok, RqiStats* stats) {
     double* const x = t_work.x.data();
     for (std::size_t j = 0; j < m_n; ++j)
       for (std::size_t b = 0; b < B; ++b) x[j * B + b] = (*xs[b])[j];
@@ -117,8 +118,10 @@ public:
       shift[b] = std::isnan(given[b]) ? rho[b] : given[b];
       if (!std::isfinite(shift[b])) shift[b] = 0.0;
     }
-    step(shift, rho, ok);
-    if (residual) residuals(rho, res);
+    double xmx[B];
+    step(shift, rho, ok, xmx);
+    for (std::size_t b = 0; b < B; ++b) stats[b] = {rho[b], xmx[b], nan_, nan_, nan_};
+    if (residual) residuals(rho, res, stats);
     for (std::size_t j = 0; j < m_n; ++j)
       for (std::size_t b = 0; b < B; ++b)
         if (ok[b]) (*xs[b])[j] = x[j * B + b];
@@ -152,17 +155,20 @@ private:
   /// Rayleigh quotients of the interleaved columns of v, summed as v . (K v): the row sums
   /// cancel locally, where sum K_ij v_i v_j term by term would lose ~1e-9 relative to
   /// cancellation on a 2,000-point mesh.
-  void quotients(const double* v, double* rho) const {
+  void quotients(const double* v, double* rho, double* vmv_out = nullptr) const {
     double vkv[B] = {}, vmv[B] = {};
     for_products(v, [&](std::size_t b, double c, double kv, double mv) {
       vkv[b] += c * kv;
       vmv[b] += c * mv;
     });
-    for (std::size_t b = 0; b < B; ++b) rho[b] = vkv[b] / vmv[b];
+    for (std::size_t b = 0; b < B; ++b) {
+      rho[b] = vkv[b] / vmv[b];
+      if (vmv_out) vmv_out[b] = vmv[b];
+    }
   }
 
-  /// ||K x - rho M x|| / (||K x|| + |rho| ||M x||) per column.
-  void residuals(const double* rho, double* res) const {
+  /// ||K x - rho M x|| / (||K x|| + |rho| ||M x||) per column, and the three norms.
+  void residuals(const double* rho, double* res, RqiStats* stats) const {
     double r2[B] = {}, k2[B] = {}, m2[B] = {};
     for_products(t_work.x.data(), [&](std::size_t b, double, double kx, double mx) {
       const double e = kx - rho[b] * mx;
@@ -173,12 +179,15 @@ private:
     for (std::size_t b = 0; b < B; ++b) {
       const double denom = std::sqrt(k2[b]) + std::abs(rho[b]) * std::sqrt(m2[b]);
       res[b] = denom > 0 ? std::sqrt(r2[b]) / denom : 0.0;
+      stats[b].r_norm = std::sqrt(r2[b]);
+      stats[b].kx_norm = std::sqrt(k2[b]);
+      stats[b].mx_norm = std::sqrt(m2[b]);
     }
   }
 
   /// y = (K - s M)^{-1} M x per column; usable columns take x = y / max|y| and rho = its
   /// quotient (ok[b] says which).
-  void step(const double* s, double* rho, bool* ok) {
+  void step(const double* s, double* rho, bool* ok, double* xmx) {
     const std::size_t n = m_n;
     double* const x = t_work.x.data();
     double* const y = t_work.y.data();
@@ -218,18 +227,20 @@ private:
       }
     }
     // (3) new x and its quotient.
-    double q[B];
-    quotients(y, q);
+    double q[B], ymy[B];
+    quotients(y, q, ymy);
     double inv[B];
     for (std::size_t b = 0; b < B; ++b) {
       ok[b] = big[b] > 0 && std::isfinite(big[b]) && std::isfinite(q[b]);
       inv[b] = ok[b] ? 1.0 / big[b] : 0.0;
+      xmx[b] = ymy[b] * inv[b] * inv[b];
       if (ok[b]) rho[b] = q[b];
     }
     for (std::size_t j = 0; j < n; ++j)
       for (std::size_t b = 0; b < B; ++b) x[j * B + b] = y[j * B + b] * inv[b];
   }
 
+  static constexpr double nan_ = std::numeric_limits<double>::quiet_NaN();
   const TridiagonalPencil& m_p;
   std::size_t m_n;
   double m_kmax, m_mmax;
@@ -245,7 +256,7 @@ std::vector<int> inertia_below_many(const TridiagonalPencil& p, const std::vecto
   return counts;
 }
 
-std::vector<double> rayleigh_iterate(const TridiagonalPencil& p,
+std::vector<RqiStats> rayleigh_iterate(const TridiagonalPencil& p,
                                      std::vector<std::vector<double>>& xs, int min_steps,
                                      int max_steps, double scale, double residual_tol,
                                      const std::vector<double>& first_shifts) {
@@ -259,6 +270,7 @@ std::vector<double> rayleigh_iterate(const TridiagonalPencil& p,
   const std::size_t count = xs.size();
   const double nan = std::numeric_limits<double>::quiet_NaN();
   std::vector<double> rho(count, nan), previous(count, nan), res(count, nan);
+  std::vector<RqiStats> stats(count, RqiStats{nan, nan, nan, nan, nan});
   std::vector<char> active(count, 1);
   for (int it = 0; it < max_steps; ++it) {
     // Each round steps only the vectors still active, in blocks of up to max_width.
@@ -279,6 +291,7 @@ std::vector<double> rayleigh_iterate(const TridiagonalPencil& p,
       std::vector<double>* ptr[max_width];
       double r[max_width], e[max_width], given[max_width];
       bool ok[max_width];
+      RqiStats st[max_width];
       for (std::size_t b = 0; b < width; ++b) {
         const std::size_t i = todo[first + b];
         ptr[b] = &xs[i];
@@ -286,7 +299,7 @@ std::vector<double> rayleigh_iterate(const TridiagonalPencil& p,
         given[b] = it == 0 && i < first_shifts.size() ? first_shifts[i] : nan;
       }
       with_width(width, [&](auto w) {
-        RqiStep<decltype(w)::value>(p, kmax, mmax).run(ptr, given, r, residual_tol > 0, e, ok);
+        RqiStep<decltype(w)::value>(p, kmax, mmax).run(ptr, given, r, residual_tol > 0, e, ok, st);
       });
       for (std::size_t b = 0; b < width; ++b) {
         const std::size_t i = todo[first + b];
@@ -296,10 +309,11 @@ std::vector<double> rayleigh_iterate(const TridiagonalPencil& p,
         }
         rho[i] = r[b];
         res[i] = e[b];
+        stats[i] = st[b];
       }
     });
   }
-  return rho;
+  return stats;
 }
 
 std::optional<MeshLevel> coarsen(const std::vector<std::size_t>& fn, bool fix_first,

@@ -19,6 +19,16 @@ namespace radmode::detail {
 /// counts[b] = inertia_below(p, shifts[b]) for every b (same arithmetic, same results).
 std::vector<int> inertia_below_many(const TridiagonalPencil& p, const std::vector<double>& shifts);
 
+/// What the last Rayleigh quotient step measured of a vector (NaN where not measured: no step
+/// taken, or no residual requested).
+struct RqiStats {
+  double rho;     ///< Rayleigh quotient x^T K x / x^T M x
+  double xmx;     ///< x^T M x
+  double r_norm;  ///< ||K x - rho M x||
+  double kx_norm; ///< ||K x||
+  double mx_norm; ///< ||M x||
+};
+
 /// Rayleigh quotient iteration on every vector of `xs` together (each of size p.size()):
 /// x <- (K - rho(x) M)^{-1} M x, scaled to max |x| = 1, at most `max_steps` steps. A vector
 /// stops once, after at least `min_steps` steps, its quotient changes by no more than
@@ -27,8 +37,9 @@ std::vector<int> inertia_below_many(const TridiagonalPencil& p, const std::vecto
 /// is at most residual_tol. Vectors that become zero or non-finite are left as they were
 /// before the failing step. The first step of vector i uses first_shifts[i] instead of its
 /// quotient when given (and not NaN): a better estimate of the eigenvalue, e.g. extrapolated
-/// from coarser meshes, makes that step far more effective. Returns the final quotients.
-std::vector<double> rayleigh_iterate(const TridiagonalPencil& p,
+/// from coarser meshes, makes that step far more effective. Returns what the last step of each
+/// vector measured (see RqiStats).
+std::vector<RqiStats> rayleigh_iterate(const TridiagonalPencil& p,
                                      std::vector<std::vector<double>>& xs, int min_steps,
                                      int max_steps, double scale, double residual_tol = 0,
                                      const std::vector<double>& first_shifts = {});

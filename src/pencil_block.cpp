@@ -138,18 +138,31 @@ private:
             first ? 0.0 : m_p.m_off[j - 1], last ? 0.0 : m_p.k_off[j], last ? 0.0 : m_p.m_off[j]};
   }
 
-  /// Calls f(b, v_jb, (K v)_jb, (M v)_jb) for every row j and column b of the interleaved v.
+  /// Calls f(b, v_jb, (K v)_jb, (M v)_jb) for every row j and column b of the interleaved v
+  /// (the end rows apart, so that the inner loop has no tests).
   template <class F> void for_products(const double* v, F&& f) const {
     const std::size_t n = m_n;
-    for (std::size_t j = 0; j < n; ++j) {
+    static constexpr double zeros[B] = {};
+    auto rows = [&](std::size_t j, const double* l, const double* r) {
       const auto [kd, md, ko_prev, mo_prev, ko, mo] = row(j);
-      for (std::size_t b = 0; b < B; ++b) {
-        const double c = v[j * B + b];
-        const double l = j > 0 ? v[(j - 1) * B + b] : 0.0;
-        const double r = j + 1 < n ? v[(j + 1) * B + b] : 0.0;
-        f(b, c, kd * c + ko_prev * l + ko * r, md * c + mo_prev * l + mo * r);
-      }
+      const double* c = v + j * B;
+      for (std::size_t b = 0; b < B; ++b)
+        f(b, c[b], kd * c[b] + ko_prev * l[b] + ko * r[b], md * c[b] + mo_prev * l[b] + mo * r[b]);
+    };
+    rows(0, zeros, n > 1 ? v + B : zeros);
+    const double* const kd = m_p.k_diag.data();
+    const double* const md = m_p.m_diag.data();
+    const double* const ko = m_p.k_off.data();
+    const double* const mo = m_p.m_off.data();
+    for (std::size_t j = 1; j + 1 < n; ++j) {
+      const double* l = v + (j - 1) * B;
+      const double* c = l + B;
+      const double* r = c + B;
+      for (std::size_t b = 0; b < B; ++b)
+        f(b, c[b], kd[j] * c[b] + ko[j - 1] * l[b] + ko[j] * r[b],
+          md[j] * c[b] + mo[j - 1] * l[b] + mo[j] * r[b]);
     }
+    if (n > 1) rows(n - 1, v + (n - 2) * B, zeros);
   }
 
   /// Rayleigh quotients of the interleaved columns of v, summed as v . (K v): the row sums
@@ -199,13 +212,13 @@ private:
       l_prev[b] = 0.0;
       y_prev[b] = 0.0;
     }
-    // (1) factor + forward substitution.
-    for (std::size_t j = 0; j < n; ++j) {
-      const auto [kd, md, ko_prev, mo_prev, ko, mo] = row(j);
+    // (1) factor + forward substitution (the end rows apart: no tests in the inner loop).
+    static constexpr double zeros[B] = {};
+    auto forward = [&](std::size_t j, double kd, double md, double ko_prev, double mo_prev,
+                       double ko, double mo, const double* xl, const double* xr) {
+      const double* xc = x + j * B;
       for (std::size_t b = 0; b < B; ++b) {
-        const double xl = j > 0 ? x[(j - 1) * B + b] : 0.0;
-        const double xr = j + 1 < n ? x[(j + 1) * B + b] : 0.0;
-        const double mx = md * x[j * B + b] + mo_prev * xl + mo * xr;
+        const double mx = md * xc[b] + mo_prev * xl[b] + mo * xr[b];
         double d = kd - s[b] * md - l_prev[b] * (ko_prev - s[b] * mo_prev);
         if (std::abs(d) < floor[b]) d = d < 0 ? -floor[b] : floor[b]; // singular: stay finite
         const double dinv = 1.0 / d;
@@ -215,6 +228,17 @@ private:
         lv[j * B + b] = l_prev[b];
         dv[j * B + b] = dinv;
       }
+    };
+    {
+      const auto [kd, md, ko_prev, mo_prev, ko, mo] = row(0);
+      forward(0, kd, md, ko_prev, mo_prev, ko, mo, zeros, n > 1 ? x + B : zeros);
+    }
+    for (std::size_t j = 1; j + 1 < n; ++j)
+      forward(j, m_p.k_diag[j], m_p.m_diag[j], m_p.k_off[j - 1], m_p.m_off[j - 1], m_p.k_off[j],
+              m_p.m_off[j], x + (j - 1) * B, x + (j + 1) * B);
+    if (n > 1) {
+      const auto [kd, md, ko_prev, mo_prev, ko, mo] = row(n - 1);
+      forward(n - 1, kd, md, ko_prev, mo_prev, ko, mo, x + (n - 2) * B, zeros);
     }
     // (2) scaling + backward substitution.
     double next[B], big[B];

@@ -2,7 +2,10 @@
 //   build/tests/bench_solve [repeats]
 // For n = 3 polytropes of 2,000 / 20,000 / 200,000 points (make_polytrope):
 //  - "assemble+solve": Structure + energy form + tridiagonal pencil + solve_pencil of the 10
-//    lowest modes on the model mesh (Spectra shift-invert Lanczos, inertia-verified);
+//    lowest modes on the model mesh (nested iteration: Spectra shift-invert Lanczos on the
+//    coarsest of a family of every-other-node meshes, Rayleigh quotient iteration up to the
+//    model mesh, every eigenvalue's index verified by inertia);
+//  - "solve 10": the solve_pencil call alone, on the pencil assembled once;
 //  - "solve_modes": the whole default solve_modes (5 modes, nested iteration, Richardson with
 //    the coarse mesh, interpolation-error estimate) and with 10 modes;
 // median wall-clock milliseconds and median thread CPU milliseconds of the repeats, and the
@@ -75,9 +78,11 @@ double exponent(const std::vector<double>& n, const std::vector<double>& t) {
 int main(int argc, char** argv) {
   const int repeats = argc > 1 ? std::max(1, std::stoi(argv[1])) : 21;
   const std::vector<std::size_t> sizes = {2000, 20000, 200000};
-  std::vector<double> ns, t_solve, t_modes;
-  std::printf("%9s %22s %22s %22s\n", "points", "assemble+solve 10", "solve_modes 5", "solve_modes 10");
-  std::printf("%9s %22s %22s %22s\n", "", "wall ms / cpu ms", "wall ms / cpu ms", "wall ms / cpu ms");
+  std::vector<double> ns, t_solve, t_only, t_modes;
+  std::printf("%9s %22s %22s %22s %22s\n", "points", "assemble+solve 10", "solve 10", "solve_modes 5",
+              "solve_modes 10");
+  std::printf("%9s %22s %22s %22s %22s\n", "", "wall ms / cpu ms", "wall ms / cpu ms", "wall ms / cpu ms",
+              "wall ms / cpu ms");
   for (const std::size_t n : sizes) {
     GeneratorOptions g;
     g.points = n;
@@ -92,19 +97,27 @@ int main(int argc, char** argv) {
       req.count = 10;
       sink += solve_pencil(p, req).pairs.back().lambda;
     });
+    const Structure s0(model);
+    const WeakForm f0 = make_stellar_form(s0, SurfaceCondition::regular);
+    const TridiagonalPencil p0 = assemble(f0, {all_nodes(f0), false, false});
+    PencilRequest req10;
+    req10.count = 10;
+    const Timing o = time_it(reps, [&] { sink += solve_pencil(p0, req10).pairs.back().lambda; });
     SolveOptions o5, o10;
     o10.count = 10;
     const Timing b = time_it(reps, [&] { sink += solve_modes(model, o5).modes.back().omega2; });
     const Timing c = time_it(reps, [&] { sink += solve_modes(model, o10).modes.back().omega2; });
-    std::printf("%9zu %10.3f / %9.3f %10.3f / %9.3f %10.3f / %9.3f   (%g)\n", n, a.wall_ms, a.cpu_ms,
-                b.wall_ms, b.cpu_ms, c.wall_ms, c.cpu_ms, sink > 0 ? 1.0 : 0.0);
+    std::printf("%9zu %10.3f / %9.3f %10.3f / %9.3f %10.3f / %9.3f %10.3f / %9.3f   (%g)\n", n,
+                a.wall_ms, a.cpu_ms, o.wall_ms, o.cpu_ms, b.wall_ms, b.cpu_ms, c.wall_ms, c.cpu_ms,
+                sink > 0 ? 1.0 : 0.0);
     ns.push_back(static_cast<double>(n));
     t_solve.push_back(a.cpu_ms);
+    t_only.push_back(o.cpu_ms);
     t_modes.push_back(b.cpu_ms);
   }
   std::printf("fitted scaling exponent (cpu time ~ N^p): assemble+solve 10: p = %.2f, "
-              "solve_modes 5: p = %.2f\n",
-              exponent(ns, t_solve), exponent(ns, t_modes));
+              "solve 10: p = %.2f, solve_modes 5: p = %.2f\n",
+              exponent(ns, t_solve), exponent(ns, t_only), exponent(ns, t_modes));
 
   // Throughput: two threads, default options, 2,000-point models.
   GeneratorOptions g;

@@ -688,8 +688,8 @@ PencilSpectrum solve_pencil(const TridiagonalPencil& p, const PencilRequest& req
       Spectra::SymGEigsShiftSolver<ShiftInvertOp, MassOp, Spectra::GEigsMode::ShiftInvert> eigs(
           op, bop, nev, ncv, sigma);
       eigs.init();
-      // A loose tolerance: every Ritz vector is polished below by one Rayleigh quotient
-      // iteration step, which also makes the result independent of how far the Lanczos
+      // A loose tolerance: every Ritz vector is polished below by Rayleigh quotient
+      // iteration, which also makes the result independent of how far the Lanczos
       // recurrence can be trusted in floating point (for N ~ 1e5 the shifted operator's
       // condition number keeps Spectra from certifying much beyond 1e-9).
       const auto nconv = eigs.compute(Spectra::SortRule::LargestMagn, 1000, 1e-8,
@@ -702,8 +702,10 @@ PencilSpectrum solve_pencil(const TridiagonalPencil& p, const PencilRequest& req
           const Vec v = vecs.col(c);
           xs.emplace_back(v.data(), v.data() + v.size());
         }
-        detail::rayleigh_iterate(p, xs, 1, 1, eng.scale);
-        found = eng.finish_all(std::move(xs));
+        // Polish: Rayleigh quotient iteration until the residual is below 1e-10 (one step
+        // for most vectors; Ritz vectors far from the shift may need two or three).
+        const std::vector<detail::RqiStats> stats = detail::rayleigh_iterate(p, xs, 1, 3, eng.scale, 1e-10);
+        found = eng.finish_all(std::move(xs), true, &stats);
       }
       if (eigs.info() != Spectra::CompInfo::Successful) {
         out.message = "Spectra did not converge for every requested eigenvalue (" +

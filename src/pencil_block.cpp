@@ -120,7 +120,7 @@ public:
     }
     double xmx[B];
     step(shift, rho, ok, xmx);
-    for (std::size_t b = 0; b < B; ++b) stats[b] = {rho[b], xmx[b], nan_, nan_, nan_};
+    for (std::size_t b = 0; b < B; ++b) stats[b] = {rho[b], xmx[b], nan_, nan_, nan_, nan_};
     if (residual) residuals(rho, res, stats);
     for (std::size_t j = 0; j < m_n; ++j)
       for (std::size_t b = 0; b < B; ++b)
@@ -138,8 +138,8 @@ private:
             first ? 0.0 : m_p.m_off[j - 1], last ? 0.0 : m_p.k_off[j], last ? 0.0 : m_p.m_off[j]};
   }
 
-  /// Calls f(b, v_jb, (K v)_jb, (M v)_jb) for every row j and column b of the interleaved v
-  /// (the end rows apart, so that the inner loop has no tests).
+  /// Calls f(b, v_jb, (K v)_jb, (M v)_jb, (|K||v|)_jb, (|M||v|)_jb) for every row j and column
+  /// b of the interleaved v (the end rows apart, so that the inner loop has no tests).
   template <class F> void for_products(const double* v, F&& f) const {
     const std::size_t n = m_n;
     static constexpr double zeros[B] = {};
@@ -147,7 +147,9 @@ private:
       const auto [kd, md, ko_prev, mo_prev, ko, mo] = row(j);
       const double* c = v + j * B;
       for (std::size_t b = 0; b < B; ++b)
-        f(b, c[b], kd * c[b] + ko_prev * l[b] + ko * r[b], md * c[b] + mo_prev * l[b] + mo * r[b]);
+        f(b, c[b], kd * c[b] + ko_prev * l[b] + ko * r[b], md * c[b] + mo_prev * l[b] + mo * r[b],
+          std::abs(kd * c[b]) + std::abs(ko_prev * l[b]) + std::abs(ko * r[b]),
+          std::abs(md * c[b]) + std::abs(mo_prev * l[b]) + std::abs(mo * r[b]));
     };
     rows(0, zeros, n > 1 ? v + B : zeros);
     const double* const kd = m_p.k_diag.data();
@@ -160,7 +162,9 @@ private:
       const double* r = c + B;
       for (std::size_t b = 0; b < B; ++b)
         f(b, c[b], kd[j] * c[b] + ko[j - 1] * l[b] + ko[j] * r[b],
-          md[j] * c[b] + mo[j - 1] * l[b] + mo[j] * r[b]);
+          md[j] * c[b] + mo[j - 1] * l[b] + mo[j] * r[b],
+          std::abs(kd[j] * c[b]) + std::abs(ko[j - 1] * l[b]) + std::abs(ko[j] * r[b]),
+          std::abs(md[j] * c[b]) + std::abs(mo[j - 1] * l[b]) + std::abs(mo[j] * r[b]));
     }
     if (n > 1) rows(n - 1, v + (n - 2) * B, zeros);
   }
@@ -170,7 +174,7 @@ private:
   /// cancellation on a 2,000-point mesh.
   void quotients(const double* v, double* rho, double* vmv_out = nullptr) const {
     double vkv[B] = {}, vmv[B] = {};
-    for_products(v, [&](std::size_t b, double c, double kv, double mv) {
+    for_products(v, [&](std::size_t b, double c, double kv, double mv, double, double) {
       vkv[b] += c * kv;
       vmv[b] += c * mv;
     });
@@ -180,23 +184,30 @@ private:
     }
   }
 
-  /// ||K x - rho M x|| / (||K x|| + |rho| ||M x||) per column, and the three norms.
+  /// ||K x - rho M x|| / (||K x|| + |rho| ||M x||) per column, the norms, and the residual's
+  /// round-off level eps || |K||x| + |rho||M||x| || / (same denominator): res[b] is reported as
+  /// 0 when below ten times that level (iterating cannot lower it further).
   void residuals(const double* rho, double* res, RqiStats* stats) const {
-    double r2[B] = {}, k2[B] = {}, m2[B] = {};
-    for_products(t_work.x.data(), [&](std::size_t b, double, double kx, double mx) {
-      const double e = kx - rho[b] * mx;
+    double r2[B] = {}, k2[B] = {}, m2[B] = {}, a2[B] = {};
+    for_products(t_work.x.data(), [&](std::size_t b, double, double kx, double mx, double ak, double am) {
+      const double e = kx - rho[b] * mx, a = ak + std::abs(rho[b]) * am;
       r2[b] += e * e;
       k2[b] += kx * kx;
       m2[b] += mx * mx;
+      a2[b] += a * a;
     });
     for (std::size_t b = 0; b < B; ++b) {
       const double denom = std::sqrt(k2[b]) + std::abs(rho[b]) * std::sqrt(m2[b]);
+      const double floor = denom > 0 ? eps * std::sqrt(a2[b]) / denom : 0.0;
       res[b] = denom > 0 ? std::sqrt(r2[b]) / denom : 0.0;
+      if (res[b] <= 10 * floor) res[b] = 0.0;
       stats[b].r_norm = std::sqrt(r2[b]);
       stats[b].kx_norm = std::sqrt(k2[b]);
       stats[b].mx_norm = std::sqrt(m2[b]);
+      stats[b].a_norm = std::sqrt(a2[b]);
     }
   }
+
 
   /// y = (K - s M)^{-1} M x per column; usable columns take x = y / max|y| and rho = its
   /// quotient (ok[b] says which).
@@ -294,7 +305,7 @@ std::vector<RqiStats> rayleigh_iterate(const TridiagonalPencil& p,
   const std::size_t count = xs.size();
   const double nan = std::numeric_limits<double>::quiet_NaN();
   std::vector<double> rho(count, nan), previous(count, nan), res(count, nan);
-  std::vector<RqiStats> stats(count, RqiStats{nan, nan, nan, nan, nan});
+  std::vector<RqiStats> stats(count, RqiStats{nan, nan, nan, nan, nan, nan});
   std::vector<char> active(count, 1);
   for (int it = 0; it < max_steps; ++it) {
     // Each round steps only the vectors still active, in blocks of up to max_width.

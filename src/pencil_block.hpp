@@ -27,6 +27,7 @@ struct RqiStats {
   double r_norm;  ///< ||K x - rho M x||
   double kx_norm; ///< ||K x||
   double mx_norm; ///< ||M x||
+  double a_norm;  ///< || |K||x| + |rho||M||x| || (round-off scale of the residual)
 };
 
 /// Rayleigh quotient iteration on every vector of `xs` together (each of size p.size()):
@@ -34,7 +35,7 @@ struct RqiStats {
 /// stops once, after at least `min_steps` steps, its quotient changes by no more than
 /// 1e-14 |rho| + 4 eps `scale` between steps (scale: magnitude of the spectrum), or (when
 /// residual_tol > 0) after any step whose residual ||K x - rho M x|| / (||K x|| + |rho| ||M x||)
-/// is at most residual_tol. Vectors that become zero or non-finite are left as they were
+/// is at most max(residual_tol, 10 x its round-off level, see RqiStats::a_norm). Vectors that become zero or non-finite are left as they were
 /// before the failing step. The first step of vector i uses first_shifts[i] instead of its
 /// quotient when given (and not NaN): a better estimate of the eigenvalue, e.g. extrapolated
 /// from coarser meshes, makes that step far more effective. Returns what the last step of each

@@ -13,7 +13,10 @@
 // extrapolation removes: omega2 = omega2_fine + (omega2_fine - omega2_coarse)/3. The error
 // estimate is |omega2_fine - omega2_coarse|/3 (the error of the fine value; the extrapolated
 // value is normally far more accurate), plus interpolation_error, plus the solver residual
-// and round-off (2 residual |omega2| + 100 eps sum|x_i K_ij x_j|/x^T M x).
+// and round-off: 2 residual |omega2| + 10 eps sqrt(sum_i (|x_i| sum_j |K_ij x_j|)^2) / x^T M x,
+// the second term ten standard deviations of independent rounding errors of the products
+// K_ij x_i x_j (a statistical estimate; the worst case, eps sum |x_i K_ij x_j|, grows like
+// N^2 and exceeds the observed round-off by orders of magnitude on large meshes).
 //
 // Solution path (solve_modes): nested iteration over a family of meshes, each every other
 // node of the one above (pencils by Galerkin restriction, identical to assembling them):
@@ -79,6 +82,10 @@ struct ModeSolution {
   /// ||K x - w M x|| / (||K x|| + max(|w|, w_ref) ||M x||) on the fine mesh, w_ref the
   /// largest |w| among the modes solved together (see PencilEigenpair::residual).
   double residual = 0;
+  /// Round-off level of `residual` (PencilEigenpair::residual_floor). A residual counts as
+  /// large above max(1e-8, 10 residual_floor): on fine meshes the floor itself exceeds 1e-8
+  /// (it grows like N^2: about 1e-7 at 200,000 points).
+  double residual_floor = 0;
   /// Part of error_estimate [s^-2] due to the interpolation of the model between its table
   /// points: |dw|/3, dw the first-order change of omega2 (x^T (dK - w dM) x for the fine
   /// eigenvector, the change of the form integrated with Simpson's rule on every element)
@@ -135,6 +142,9 @@ struct PencilEigenpair {
   /// ||K x - lambda M x|| / (||K x|| + max(|lambda|, lambda_ref) ||M x||), lambda_ref the
   /// largest |lambda| of the request (so that an eigenvalue at 0 gets a meaningful number).
   double residual = 0;
+  /// Round-off level of `residual`: eps || |K||x| + |lambda||M||x| || over the same
+  /// denominator. A converged vector's residual sits at a fraction of it.
+  double residual_floor = 0;
   std::vector<double> x;   ///< eigenvector, x^T M x = 1
 };
 

@@ -6,6 +6,8 @@
 //    coarsest of a family of every-other-node meshes, Rayleigh quotient iteration up to the
 //    model mesh, every eigenvalue's index verified by inertia);
 //  - "solve 10": the solve_pencil call alone, on the pencil assembled once;
+//  - a reference with exactly O(N) work (20 inertia counts on that pencil), whose fitted
+//    exponent shows how far the memory hierarchy alone bends O(N) work on this machine;
 //  - "solve_modes": the whole default solve_modes (5 modes, nested iteration, Richardson with
 //    the coarse mesh, interpolation-error estimate) and with 10 modes;
 // median wall-clock milliseconds and median thread CPU milliseconds of the repeats, and the
@@ -78,7 +80,7 @@ double exponent(const std::vector<double>& n, const std::vector<double>& t) {
 int main(int argc, char** argv) {
   const int repeats = argc > 1 ? std::max(1, std::stoi(argv[1])) : 21;
   const std::vector<std::size_t> sizes = {2000, 20000, 200000};
-  std::vector<double> ns, t_solve, t_only, t_modes;
+  std::vector<double> ns, t_solve, t_only, t_modes, t_ref;
   std::printf("%9s %22s %22s %22s %22s\n", "points", "assemble+solve 10", "solve 10", "solve_modes 5",
               "solve_modes 10");
   std::printf("%9s %22s %22s %22s %22s\n", "", "wall ms / cpu ms", "wall ms / cpu ms", "wall ms / cpu ms",
@@ -103,6 +105,12 @@ int main(int argc, char** argv) {
     PencilRequest req10;
     req10.count = 10;
     const Timing o = time_it(reps, [&] { sink += solve_pencil(p0, req10).pairs.back().lambda; });
+    // A reference with exactly O(N) work and no allocation: 20 inertia counts (one division
+    // per row each). Its exponent shows what the memory hierarchy alone does to O(N) work.
+    const Timing r = time_it(reps, [&] {
+      for (int k = 0; k < 20; ++k) sink += inertia_below(p0, 1.0 + k);
+    });
+    t_ref.push_back(r.cpu_ms);
     SolveOptions o5, o10;
     o10.count = 10;
     const Timing b = time_it(reps, [&] { sink += solve_modes(model, o5).modes.back().omega2; });
@@ -118,6 +126,8 @@ int main(int argc, char** argv) {
   std::printf("fitted scaling exponent (cpu time ~ N^p): assemble+solve 10: p = %.2f, "
               "solve 10: p = %.2f, solve_modes 5: p = %.2f\n",
               exponent(ns, t_solve), exponent(ns, t_only), exponent(ns, t_modes));
+  std::printf("reference O(N) work (20 inertia counts): %.3f / %.3f / %.3f ms, p = %.2f\n",
+              t_ref[0], t_ref[1], t_ref[2], exponent(ns, t_ref));
 
   // Throughput: two threads, default options, 2,000-point models.
   GeneratorOptions g;

@@ -128,6 +128,13 @@ int main(int argc, char** argv) {
               exponent(ns, t_solve), exponent(ns, t_only), exponent(ns, t_modes));
   std::printf("reference O(N) work (20 inertia counts): %.3f / %.3f / %.3f ms, p = %.2f\n",
               t_ref[0], t_ref[1], t_ref[2], exponent(ns, t_ref));
+  // Exponents between neighbouring sizes: where the time per point starts to grow.
+  auto pair = [](const std::vector<double>& t, std::size_t i) {
+    return std::log(t[i + 1] / t[i]) / std::log(10.0);
+  };
+  std::printf("exponent 2,000 -> 20,000 / 20,000 -> 200,000 points: solve 10: %.2f / %.2f, "
+              "solve_modes 5: %.2f / %.2f\n",
+              pair(t_only, 0), pair(t_only, 1), pair(t_modes, 0), pair(t_modes, 1));
 
   // Throughput: two threads, default options, 2,000-point models.
   GeneratorOptions g;

@@ -112,12 +112,21 @@ double omega2_unit(const Structure& s) {
   return constants::G * s.mass() / (R * R * R);
 }
 
-WeakForm make_stellar_form(const Structure& s, SurfaceCondition surface,
-                           const Structure* coefficients_from) {
+StellarUnits stellar_units(const Structure& s) {
   const double R = s.radius(), M = s.mass();
   const double P_unit = constants::G * M * M / (R * R * R * R);
   const double rho_unit = M / (R * R * R);
-  const double inv_P_unit = 1.0 / P_unit, inv_rho_unit = 1.0 / rho_unit, inv_M = 1.0 / M;
+  StellarUnits u;
+  u.inv_P = 1.0 / P_unit;
+  u.inv_rho = 1.0 / rho_unit;
+  u.inv_M = 1.0 / M;
+  return u;
+}
+
+WeakForm make_stellar_form(const Structure& s, SurfaceCondition surface,
+                           const Structure* coefficients_from) {
+  const double R = s.radius();
+  const StellarUnits units = stellar_units(s);
   const std::vector<double>& node_r = s.node_r();
   std::vector<double> x(node_r.size(), 1.0); // the surface exactly at x = 1
   for (std::size_t i = 0; i + 1 < x.size(); ++i) x[i] = node_r[i] / R;
@@ -125,12 +134,11 @@ WeakForm make_stellar_form(const Structure& s, SurfaceCondition surface,
   constexpr auto q = static_cast<std::size_t>(default_quadrature_points);
   // The coefficients at point j (interval i, position x) from the structure's values there.
   auto store = [&](std::size_t j, double xq, const StructureValues& p) {
-    const double P = p.P * inv_P_unit, rho = p.rho * inv_rho_unit, m = p.m * inv_M;
-    const double gp = p.gamma1 * P, x2 = xq * xq;
-    f.a[j] = gp * x2 * x2;
-    f.b[j] = 3.0 * gp * x2 * xq;
-    f.c[j] = 9.0 * gp * x2 - 4.0 * m * rho * xq;
-    f.d[j] = rho * x2 * x2;
+    const FormCoefficients c = stellar_coefficients(p, xq, units);
+    f.a[j] = c.a;
+    f.b[j] = c.b;
+    f.c[j] = c.c;
+    f.d[j] = c.d;
   };
   if (!coefficients_from) {
     // The same local coordinates in every interval: loop invariants, so the interpolation
@@ -167,7 +175,7 @@ WeakForm make_stellar_form(const Structure& s, SurfaceCondition surface,
     }
   }
   if (surface == SurfaceCondition::regular) {
-    const double Ps = s.surface_pressure() / P_unit;
+    const double Ps = s.surface_pressure() * units.inv_P;
     f.k_last = -4.0 * Ps;
     f.m_last = Ps;
   }

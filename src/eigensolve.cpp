@@ -1,6 +1,5 @@
 #include "radmode/eigensolve.hpp"
 
-#include "radmode/constants.hpp"
 #include "radmode/discretize.hpp"
 #include "radmode/error.hpp"
 #include "radmode/structure.hpp"
@@ -805,17 +804,12 @@ std::vector<double> interpolation_change(const Structure& s, const Structure& ha
                                          const std::vector<std::size_t>& kept,
                                          const WeakForm& form, const TridiagonalPencil& pf,
                                          const std::vector<PencilEigenpair>& pairs) {
-  const double R = s.radius(), M = s.mass();
-  const double P_inv = R * R * R * R / (constants::G * M * M), rho_inv = R * R * R / M, m_inv = 1 / M;
+  const StellarUnits units = stellar_units(s);
   const std::size_t offset = pf.node.front(); // 1 with a rigid inner node
   const std::vector<double>& x = form.x;
   const std::vector<double>& r = s.node_r();
-  // The form's coefficients at x from structure values (make_stellar_form's formulas).
   auto coefficients = [&](const StructureValues& v, double xq) {
-    const double gp = v.gamma1 * v.P * P_inv, x2 = xq * xq;
-    return FormCoefficients{gp * x2 * x2, 3.0 * gp * x2 * xq,
-                            9.0 * gp * x2 - 4.0 * v.m * m_inv * v.rho * rho_inv * xq,
-                            v.rho * rho_inv * x2 * x2};
+    return stellar_coefficients(v, xq, units);
   };
   using Delta = FormCoefficients; // change of the coefficients at one point
   auto minus = [](const FormCoefficients& u, const FormCoefficients& v) {

@@ -60,6 +60,27 @@ WeakForm sample_form(std::vector<double> x,
                      const std::function<FormCoefficients(std::size_t, double, double)>& coefficients,
                      int points_per_interval = default_quadrature_points);
 
+/// Inverse units of the stellar form for `structure`: 1/(G M^2/R^4), 1/(M/R^3), 1/M.
+struct StellarUnits {
+  double inv_P = 0, inv_rho = 0, inv_M = 0;
+};
+StellarUnits stellar_units(const Structure& structure);
+
+/// The stellar form's coefficients a, b, c, d (see the file comment) at x = r/R from the
+/// structure's values there: the one formula behind make_stellar_form, also used to measure
+/// how the coefficients change with the interpolation.
+inline FormCoefficients stellar_coefficients(const StructureValues& v, double x,
+                                             const StellarUnits& u) {
+  const double P = v.P * u.inv_P, rho = v.rho * u.inv_rho, m = v.m * u.inv_M;
+  const double gp = v.gamma1 * P, x2 = x * x;
+  FormCoefficients c;
+  c.a = gp * x2 * x2;
+  c.b = 3.0 * gp * x2 * x;
+  c.c = 9.0 * gp * x2 - 4.0 * m * rho * x;
+  c.d = rho * x2 * x2;
+  return c;
+}
+
 /// The stellar energy form of `structure` in the units above (see the file comment). The base
 /// mesh is structure.node_r() / R. omega2_unit() converts its eigenvalues to s^-2.
 /// If `coefficients_from` is given, the coefficients at the quadrature points are taken from

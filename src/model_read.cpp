@@ -1,6 +1,6 @@
 // Table reader: native format and foreign tables through a column map (model_io.hpp).
-// One pass over the text held in memory; numbers parsed with std::from_chars, no per-number
-// allocation.
+// One pass over the text held in memory; numbers converted in the scanning pass where that is
+// provably exact, otherwise by std::from_chars; no per-number allocation.
 #include "radmode/model_io.hpp"
 
 #include "radmode/constants.hpp"
@@ -15,6 +15,7 @@
 #include <cstdio>
 #include <cstdlib>
 #include <cstring>
+#include <limits>
 #include <memory>
 
 #include <sys/stat.h>
@@ -122,8 +123,10 @@ std::string_view trim(std::string_view s) {
 // A table number of up to 15 significant digits with a moderate exponent is converted in the
 // same pass that finds the end of the field: w <= 2^53 and 10^|k| <= 10^22 are exact doubles,
 // so one IEEE multiplication or division gives the correctly rounded w * 10^k (Clinger 1990,
-// "How to read floating point numbers accurately", PLDI). Every other number goes to
-// std::from_chars, so the result is always the double std::from_chars gives.
+// "How to read floating point numbers accurately", PLDI). Numbers of 16-19 significant digits
+// (the 17 digits the writer uses) take the same step in 64-bit extended precision where the
+// machine has it (extended_product below). Every other number goes to std::from_chars, so
+// the result is always the double std::from_chars gives.
 
 bool is_digit(char c) {
   return static_cast<unsigned char>(c - '0') < 10;
@@ -208,6 +211,62 @@ bool exact_product(std::uint64_t w, int k, bool negative, double& out) {
 #endif
 }
 
+// Extended-precision step for 16-19 significant digits (w < 10^19 < 2^64, |k| <= 27), where
+// `long double` has a 64-bit significand (x87 extended format: x86 and x86-64 with GCC or
+// Clang). Why it rounds correctly (a double rounding that cannot go wrong):
+//  - w (< 2^64, also after moving powers of ten from 10^k into it when k > 27) and 10^|k|
+//    (5^27 < 2^64) are exact 64-bit-significand numbers, so v = w * 10^k (or
+//    w / 10^-k) is one correctly rounded operation: v = round64(t), t the exact value.
+//  - round64 is monotone and every double midpoint (53 + 1 bits) is a 64-bit number M. If
+//    t < M then v <= M, and t > M gives v >= M; so when v is no midpoint, v and t lie on the
+//    same side of every midpoint (between the same two) and round to the same double. When v
+//    is a midpoint, t may lie on either side (or on it): std::from_chars decides.
+//  - The results lie in [1e-27, 1e46], so they are normal doubles (53-bit significands).
+// v is a midpoint exactly when v != d = double(v) and d + 2 (v - d) is the neighbouring
+// double (both operations exact in 64 bits: v - d is a multiple of v's last place and smaller
+// than d's spacing), which needs no knowledge of the memory layout of long double.
+// The argument needs the x87 precision control at 64 bits and rounding to nearest (the
+// defaults on Linux); both are checked once at run time, otherwise std::from_chars is used.
+
+constexpr bool long_double_is_extended =
+    std::numeric_limits<long double>::radix == 2 && std::numeric_limits<long double>::digits == 64;
+constexpr int max_extended_power = 27; // 10^27 = 5^27 * 2^27, 5^27 < 2^64
+
+/// True when long double arithmetic carries 64 bits and rounds to nearest (ties to even):
+/// 1 + 2^-63 is kept, 1 + 2^-64 (a tie) goes to 1, 1 + 3 * 2^-65 goes up to 1 + 2^-63.
+bool extended_rounding_usable() {
+  if (!long_double_is_extended) return false;
+  volatile long double one = 1.0L, ulp = 0x1p-63L, half = 0x1p-64L, three_quarters = 0x3p-65L;
+  return one + ulp != one && one + half == one && one + three_quarters == one + ulp;
+}
+
+/// w * 10^k correctly rounded to double via one 64-bit-significand operation (see above);
+/// false when the step does not apply or the result would need std::from_chars.
+bool extended_product(std::uint64_t w, int k, bool negative, double& out) {
+  static constexpr long double pow10[max_extended_power + 1] = {
+      1e0L,  1e1L,  1e2L,  1e3L,  1e4L,  1e5L,  1e6L,  1e7L,  1e8L,  1e9L,
+      1e10L, 1e11L, 1e12L, 1e13L, 1e14L, 1e15L, 1e16L, 1e17L, 1e18L, 1e19L,
+      1e20L, 1e21L, 1e22L, 1e23L, 1e24L, 1e25L, 1e26L, 1e27L};
+  static const bool usable = extended_rounding_usable();
+  if (!usable || k < -max_extended_power) return false;
+  for (; k > max_extended_power; --k) {
+    if (w > std::numeric_limits<std::uint64_t>::max() / 10) return false;
+    w *= 10;
+  }
+  const long double x = static_cast<long double>(w);
+  const long double v = k < 0 ? x / pow10[-k] : x * pow10[k];
+  const double d = static_cast<double>(v);
+  const long double d_ext = static_cast<long double>(d);
+  const long double delta = v - d_ext;
+  if (delta != 0) {
+    const long double reflected = d_ext + 2 * delta;
+    if (static_cast<long double>(static_cast<double>(reflected)) == reflected)
+      return false; // v is a midpoint
+  }
+  out = negative ? -d : d;
+  return true;
+}
+
 enum class Scan {
   converted, ///< `out` holds the value
   standard,  ///< a decimal number for std::from_chars (sign and 'e' exponent only)
@@ -251,7 +310,9 @@ Scan scan_number(const char* p, const char* end, const char*& stop, double& out)
     k += exp_negative ? -e : e;
     stop = p;
   }
-  if (digits <= max_digits && exact_product(w, k, negative, out)) return Scan::converted;
+  if (digits <= max_digits &&
+      (exact_product(w, k, negative, out) || extended_product(w, k, negative, out)))
+    return Scan::converted;
   return plain;
 }
 

@@ -18,6 +18,7 @@
 #include <vector>
 
 using namespace radmode;
+using radmode::test::bits_of;
 
 namespace {
 
@@ -479,12 +480,6 @@ double strtod_reference(std::string token) {
   for (auto& c : token)
     if (c == 'd' || c == 'D') c = 'e';
   return std::strtod(token.c_str(), nullptr);
-}
-
-std::uint64_t bits_of(double x) {
-  std::uint64_t b = 0;
-  std::memcpy(&b, &x, sizeof b);
-  return b;
 }
 
 /// Tokens covering the shortcut of the reader (<= 15 digits, moderate exponents) and the

@@ -1,8 +1,10 @@
 // Benchmark: parsing a 2,000-point model table (native format and through a column map).
-// Built, not run by ctest:  build/tests/bench_model_read [repetitions]
-// Prints the median, mean and minimum wall time per parse (the machine is shared: the median
-// and the minimum are the figures to compare). Batch runs parse thousands of models, so one
-// parse of a 2,000-line table should stay well below a millisecond.
+// Built, not run by ctest:  build/tests/bench_model_read [repetitions [TABLE...]]
+// Prints the median, mean and minimum wall time and the mean CPU time per parse (the machine is
+// shared: the median and the minimum are the figures to compare). Batch runs parse thousands of
+// models, so one parse of a 2,000-line table should stay well below a millisecond. Each TABLE file
+// (e.g. a model of a track written by `radmode make`) is read into memory once and then timed with
+// parse_model and with read_model (file read included).
 #include "radmode/model_io.hpp"
 #include "timing.hpp"
 
@@ -11,7 +13,11 @@
 #include <cmath>
 #include <cstdio>
 #include <cstdlib>
+#include <ctime>
+#include <fstream>
+#include <sstream>
 #include <string>
+#include <utility>
 #include <vector>
 
 namespace {
@@ -48,23 +54,52 @@ using radmode::bench::Timing;
 /// Median and mean wall time of one parse over `reps` timed parses (after one untimed parse
 /// that builds any lazily initialised tables). The median is robust against other processes
 /// taking the core for a while.
-Timing time_per_parse(const std::string& text, const radmode::ReadOptions& options, int reps) {
-  std::size_t sink = radmode::parse_model(text, "bench", options).size();
+/// Process CPU time [s] (std::clock; immune to other processes taking the core).
+double cpu_seconds() {
+  return static_cast<double>(std::clock()) / CLOCKS_PER_SEC;
+}
+
+/// Wall time per call (median, mean, minimum) and mean CPU time per call of `call` over `reps`
+/// timed calls, after one untimed call that builds any lazily initialised tables.
+template <class Call> std::pair<Timing, double> time_calls(Call call, int reps) {
+  std::size_t sink = call();
   std::vector<double> t(static_cast<std::size_t>(reps));
+  const double cpu_start = cpu_seconds();
   for (auto& dt : t) {
     const auto start = std::chrono::steady_clock::now();
-    sink += radmode::parse_model(text, "bench", options).size();
+    sink += call();
     dt = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
   }
+  const double cpu = (cpu_seconds() - cpu_start) / reps;
   if (sink == 0) std::puts("(no points)");
-  return radmode::bench::summarize(t);
+  return {radmode::bench::summarize(t), cpu};
+}
+
+void print_line(const char* label, const std::string& what, const std::pair<Timing, double>& t) {
+  std::printf("%-27s(%s): median %7.1f us, mean %7.1f us, min %7.1f us, cpu %7.1f us per call\n",
+              label, what.c_str(), 1e6 * t.first.median_s, 1e6 * t.first.mean_s,
+              1e6 * t.first.min_s, 1e6 * t.second);
 }
 
 void report(const char* label, const std::string& text, const radmode::ReadOptions& options,
             int reps) {
-  const Timing t = time_per_parse(text, options, reps);
-  std::printf("%-27s(%6zu bytes): median %7.1f us, mean %7.1f us, min %7.1f us per parse\n", label,
-              text.size(), 1e6 * t.median_s, 1e6 * t.mean_s, 1e6 * t.min_s);
+  const auto t =
+      time_calls([&] { return radmode::parse_model(text, "bench", options).size(); }, reps);
+  print_line(label, std::to_string(text.size()) + " bytes", t);
+}
+
+/// Times parse_model on the text of `path` and read_model on the file itself.
+void report_file(const char* path, int reps) {
+  std::ifstream in(path, std::ios::binary);
+  if (!in) {
+    std::fprintf(stderr, "bench_model_read: cannot open %s\n", path);
+    std::exit(2);
+  }
+  std::ostringstream text;
+  text << in.rdbuf();
+  report("file, parse_model", text.str(), {}, reps);
+  print_line("file, read_model", path,
+             time_calls([path] { return radmode::read_model(path).size(); }, reps));
 }
 
 } // namespace
@@ -72,7 +107,7 @@ void report(const char* label, const std::string& text, const radmode::ReadOptio
 int main(int argc, char** argv) {
   const int reps = argc > 1 ? std::atoi(argv[1]) : 500;
   if (reps <= 0) {
-    std::fprintf(stderr, "usage: bench_model_read [repetitions > 0]\n");
+    std::fprintf(stderr, "usage: bench_model_read [repetitions > 0 [TABLE...]]\n");
     return 2;
   }
   const std::size_t n = 2000;
@@ -87,5 +122,6 @@ int main(int argc, char** argv) {
   report("native, cgs, 17 digits", native, {}, reps);
   report("native, solar + log10", solar, {}, reps);
   report("column map by number, log", solar, map, reps);
+  for (int i = 2; i < argc; ++i) report_file(argv[i], reps);
   return 0;
 }

@@ -1,8 +1,17 @@
 #pragma once
 // Small helpers shared by the unit tests.
+#include <cstdint>
+#include <cstring>
 #include <string>
 
 namespace radmode::test {
+
+/// The 64 bits of a double (sign, exponent and significand), for bit-for-bit comparisons.
+inline std::uint64_t bits_of(double x) {
+  std::uint64_t b = 0;
+  std::memcpy(&b, &x, sizeof b);
+  return b;
+}
 
 /// A fresh, empty directory under the system temp dir, removed (with contents) on destruction.
 class TempDir {

@@ -1,0 +1,295 @@
+// Number conversion of the table reader (parse_number in model_io.hpp and the reader's own
+// scanning pass) for numbers of 16 to 19 significant digits -- the 17 digits `radmode make`
+// writes -- which the reader converts in 64-bit extended precision where the machine has it.
+//
+// Reference: std::from_chars (C++17 [charconv.from.chars]: the value strtod gives in the "C"
+// locale; both are correctly rounded in GCC's libstdc++ and glibc), compared bit for bit.
+// Hard cases: decimal numbers on, just below and just above the midpoints between two
+// neighbouring doubles, whose exact decimal expansions come from glibc's printf (exact for
+// any precision; the test checks the trailing zeros that prove it).
+#include "radmode/model_io.hpp"
+
+#include "support.hpp"
+
+#include <doctest/doctest.h>
+
+#include <charconv>
+#include <cmath>
+#include <cstdint>
+#include <cstdio>
+#include <cstdlib>
+#include <random>
+#include <string>
+#include <vector>
+
+using namespace radmode;
+using radmode::test::bits_of;
+
+namespace {
+
+/// std::from_chars on a token of the reader's grammar: Fortran 'd'/'D' exponents become 'e'
+/// and a leading '+' (which from_chars does not take) is dropped first.
+double reference(std::string token) {
+  for (auto& c : token)
+    if (c == 'd' || c == 'D') c = 'e';
+  const std::size_t first = !token.empty() && token[0] == '+' ? 1 : 0;
+  double v = 0.0;
+  const auto res = std::from_chars(token.data() + first, token.data() + token.size(), v);
+  REQUIRE_MESSAGE(res.ec == std::errc(), token);
+  REQUIRE_MESSAGE(res.ptr == token.data() + token.size(), token);
+  return v;
+}
+
+/// Writes the integer w (no leading zeros) times 10^e in one of several forms the reader
+/// accepts: D.DDDe+X, DDDDeX, positional (point inside or zeros in front), with 'E', 'd' or
+/// 'D' exponents, a '+' sign and leading zeros sometimes.
+std::string write_decimal(const std::string& w, int e, bool negative, std::mt19937_64& rng) {
+  const int n = static_cast<int>(w.size());
+  const int magnitude = e + n - 1; // decimal exponent of the first digit
+  std::string out = negative ? "-" : (rng() % 8 == 0 ? "+" : "");
+  if (rng() % 16 == 0) out += "00";
+  const char* exp_marks[] = {"e", "e", "e", "E", "d", "D"};
+  const char* mark = exp_marks[rng() % 6];
+  switch (rng() % 4) {
+  case 0: // D.DDDe+XX
+    out += w.substr(0, 1) + "." + w.substr(1) + mark;
+    out += (magnitude >= 0 ? (rng() % 2 ? "+" : "") : "") + std::to_string(magnitude);
+    break;
+  case 1: // DDDDeX
+    out += w + mark + std::to_string(e);
+    break;
+  default: // positional when short enough, else D.DDDe+XX
+    if (magnitude >= 0 && magnitude < n - 1)
+      out += w.substr(0, static_cast<std::size_t>(magnitude + 1)) + "." +
+             w.substr(static_cast<std::size_t>(magnitude + 1));
+    else if (magnitude < 0 && magnitude >= -6)
+      out += "0." + std::string(static_cast<std::size_t>(-magnitude - 1), '0') + w;
+    else
+      out += w.substr(0, 1) + "." + w.substr(1) + mark + std::to_string(magnitude);
+    break;
+  }
+  return out;
+}
+
+/// Counts tokens whose parse_number result differs from the reference in any bit.
+struct Comparison {
+  std::size_t checked = 0, mismatches = 0;
+  void check(const std::string& token) {
+    const auto value = parse_number(token);
+    ++checked;
+    if (!value) {
+      ++mismatches;
+      FAIL_CHECK(token << ": not accepted");
+      return;
+    }
+    const double expected = reference(token);
+    if (bits_of(*value) != bits_of(expected)) {
+      ++mismatches;
+      if (mismatches <= 20) {
+        char buf[120];
+        std::snprintf(buf, sizeof buf, "got %.17g (%016llx), from_chars %.17g (%016llx)", *value,
+                      static_cast<unsigned long long>(bits_of(*value)), expected,
+                      static_cast<unsigned long long>(bits_of(expected)));
+        FAIL_CHECK(token << ": " << buf);
+      }
+    }
+  }
+};
+
+/// Random tokens of 16 to 19 significant digits, values between 1e-30 and 1e41.
+std::vector<std::string> random_tokens(std::size_t count, std::mt19937_64& rng) {
+  std::vector<std::string> out;
+  out.reserve(count);
+  for (std::size_t i = 0; i < count; ++i) {
+    const int n = 16 + static_cast<int>(rng() % 4);
+    std::string w(1, static_cast<char>('1' + rng() % 9));
+    for (int k = 1; k < n; ++k) w += static_cast<char>('0' + rng() % 10);
+    const int magnitude = static_cast<int>(rng() % 71) - 30;
+    out.push_back(write_decimal(w, magnitude - n + 1, rng() % 4 == 0, rng));
+  }
+  return out;
+}
+
+/// Digits of an exact decimal expansion "D.DDD...e+X" (printf %.Le) and its exponent;
+/// requires at least 30 trailing zeros, which shows the expansion was complete.
+void exact_digits(long double x, std::string& digits, int& magnitude) {
+  char buf[320];
+  std::snprintf(buf, sizeof buf, "%.250Le", x);
+  const std::string s(buf);
+  const auto e = s.find('e');
+  REQUIRE(e != std::string::npos);
+  digits = s.substr(0, 1) + s.substr(2, e - 2);
+  magnitude = std::atoi(s.c_str() + e + 1);
+  const auto last = digits.find_last_not_of('0');
+  REQUIRE_MESSAGE(digits.size() - last > 30, s);
+  digits.erase(last + 1);
+}
+
+/// The decimal integer in `digits` plus one (carry into a new first digit if needed).
+std::string plus_one(std::string digits) {
+  for (auto it = digits.rbegin(); it != digits.rend(); ++it) {
+    if (*it != '9') {
+      ++*it;
+      return digits;
+    }
+    *it = '0';
+  }
+  return "1" + digits;
+}
+
+/// Tokens on and around the exact midpoint between the positive double d and the next one
+/// up: the complete expansion, and the expansion cut to 16..19 digits (just below the
+/// midpoint) and cut plus one unit in the last digit (just above it).
+void add_midpoint_tokens(double d, std::vector<std::string>& out, std::mt19937_64& rng) {
+  const long double mid =
+      (static_cast<long double>(d) + static_cast<long double>(std::nextafter(d, INFINITY))) / 2;
+  std::string digits;
+  int magnitude = 0;
+  exact_digits(mid, digits, magnitude);
+  const int n_exact = static_cast<int>(digits.size());
+  out.push_back(write_decimal(digits, magnitude - n_exact + 1, false, rng));
+  for (int n = 16; n <= 19; ++n) {
+    if (n >= n_exact) continue;
+    const std::string cut = digits.substr(0, static_cast<std::size_t>(n));
+    const int e = magnitude - n + 1;
+    out.push_back(write_decimal(cut, e, false, rng));
+    const std::string up = plus_one(cut);
+    out.push_back(write_decimal(up, e, rng() % 2 == 0, rng));
+  }
+}
+
+} // namespace
+
+TEST_CASE("16-19 significant digits: random numbers give std::from_chars's double, bit for bit") {
+  std::mt19937_64 rng(20261203);
+  Comparison cmp;
+  for (const auto& token : random_tokens(200000, rng)) cmp.check(token);
+  CHECK(cmp.checked == 200000);
+  CHECK(cmp.mismatches == 0);
+}
+
+TEST_CASE("16-19 significant digits: midpoints between doubles and numbers just beside them") {
+  std::mt19937_64 rng(7);
+  std::vector<std::string> tokens;
+  // Random doubles across the table range 1e-30 .. 1e40 (random significand and exponent).
+  for (int i = 0; i < 6000; ++i) {
+    const double significand = 1.0 + std::ldexp(static_cast<double>(rng() >> 12), -52);
+    const int e2 = static_cast<int>(rng() % 234) - 100; // 2^-100 ~ 8e-31, 2^133 ~ 1.1e40
+    add_midpoint_tokens(std::ldexp(significand, e2), tokens, rng);
+  }
+  // Next to powers of two: the midpoints just below and just above 2^e.
+  for (int e2 = -100; e2 <= 133; ++e2) {
+    const double p = std::ldexp(1.0, e2);
+    add_midpoint_tokens(std::nextafter(p, 0.0), tokens, rng);
+    add_midpoint_tokens(p, tokens, rng);
+    char buf[40];
+    for (const double x : {std::nextafter(p, 0.0), p, std::nextafter(p, INFINITY)})
+      for (int prec = 15; prec <= 18; ++prec) {
+        std::snprintf(buf, sizeof buf, "%.*e", prec, x);
+        tokens.emplace_back(buf);
+      }
+  }
+  // Midpoints with at most 19 digits: M * 2^q with M odd of 54 bits lies halfway between the
+  // doubles (M - 1) 2^q and (M + 1) 2^q. M = 2^53 + odd, written as the integer M 2^q
+  // (q = 0..9), and M = c 5^j written as c 2^(q-j) "e" j.
+  for (int i = 0; i < 2000; ++i) {
+    const std::uint64_t m = (std::uint64_t{1} << 53) | (rng() & ((std::uint64_t{1} << 53) - 1)) | 1;
+    const int q = static_cast<int>(rng() % 10);
+    tokens.push_back(std::to_string(m << q));
+    tokens.push_back(std::to_string(m << q) + "e0");
+    tokens.push_back("-" + std::to_string(m << q));
+  }
+  for (int j = 1; j <= 22; ++j) {
+    std::uint64_t five_j = 1;
+    for (int k = 0; k < j; ++k) five_j *= 5;
+    // odd c with c 5^j in [2^53, 2^54)
+    const std::uint64_t c_lo = ((std::uint64_t{1} << 53) + five_j - 1) / five_j;
+    const std::uint64_t c_hi = ((std::uint64_t{1} << 54) - 1) / five_j;
+    if (c_hi < c_lo) continue;
+    for (int i = 0; i < 20; ++i) {
+      std::uint64_t c = c_lo + rng() % (c_hi - c_lo + 1);
+      if (c % 2 == 0) c = c + 1 <= c_hi ? c + 1 : c - 1;
+      if (c < c_lo || c % 2 == 0) continue;
+      for (int shift = 0;
+           shift < 64 && (c << shift) < 10000000000000000000ull && (c << shift) >> shift == c;
+           ++shift)
+        tokens.push_back(std::to_string(c << shift) + "e" + std::to_string(j));
+    }
+  }
+  // Named cases: 2^53 + 1 (halfway between 2^53 and 2^53 + 2), 10^19 - 1 mantissas, signs,
+  // leading zeros and exponent letters.
+  for (const char* t : {"9007199254740993",
+                        "9007199254740993e0",
+                        "9.007199254740993e15",
+                        "+9007199254740993",
+                        "-9007199254740993",
+                        "0009007199254740993",
+                        "9007199254740993.000",
+                        "9007199254740995",
+                        "9007199254740994.9999",
+                        "9007199254740993.0001",
+                        "18014398509481986",
+                        "18014398509481985.9",
+                        "-1.8014398509481986E16",
+                        "9223372036854775808",
+                        "9223372036854775809",
+                        "9999999999999999999",
+                        "9.999999999999999999",
+                        "-9.999999999999999999d-5",
+                        "+9.999999999999999999D+30",
+                        "0.00001234567890123456789",
+                        "1.2448519747378251e+17",
+                        "76.385255038846964",
+                        "+0.061582114830158206",
+                        "1.4248272024588833E-12",
+                        "00000000000000000001.234567890123456789"})
+    tokens.emplace_back(t);
+  for (int e = -46; e <= 21; ++e) {
+    tokens.push_back("9999999999999999999e" + std::to_string(e));
+    tokens.push_back("-1000000000000000001e" + std::to_string(e));
+    tokens.push_back("1844674407370955161e" + std::to_string(e)); // floor(2^64 / 10)
+  }
+  Comparison cmp;
+  for (const auto& token : tokens) cmp.check(token);
+  MESSAGE("midpoint cases: " << cmp.checked);
+  CHECK(cmp.checked > 50000);
+  CHECK(cmp.mismatches == 0);
+  // glibc's strtod as a second reference for the same cases.
+  std::size_t strtod_mismatches = 0;
+  for (const auto& token : tokens) {
+    std::string c_token = token;
+    for (auto& ch : c_token)
+      if (ch == 'd' || ch == 'D') ch = 'e';
+    if (bits_of(reference(token)) != bits_of(std::strtod(c_token.c_str(), nullptr)))
+      ++strtod_mismatches;
+  }
+  CHECK(strtod_mismatches == 0);
+}
+
+TEST_CASE("16-19 significant digits in table rows: the reader's own pass agrees with from_chars") {
+  // The same conversion inside parse_model (which does not go through parse_number): random
+  // 16-19-digit numbers in an extra column and in P, fields separated by blanks and commas.
+  std::mt19937_64 rng(99);
+  const auto tokens = random_tokens(20000, rng);
+  std::string t = "r m P rho Gamma1 x\n";
+  const char* separators[] = {" ", "\t", ",", " , "};
+  for (std::size_t i = 0; i < tokens.size(); ++i) {
+    const std::string& x = tokens[i];
+    const std::string p = x[0] == '-' ? x.substr(1) : x;
+    const char* sep = separators[i % 4];
+    t += std::to_string(i) + sep + std::to_string(i) + sep + p + sep + "1.5" + sep + "1.6" + sep +
+         x + (i % 3 == 0 ? " # note\n" : "\n");
+  }
+  const auto model = parse_model(t, "digits.txt");
+  REQUIRE(model.extra.size() == 1);
+  const auto& x = model.extra[0].second;
+  REQUIRE(x.size() == tokens.size());
+  REQUIRE(model.P.size() == tokens.size());
+  std::size_t mismatches = 0;
+  for (std::size_t i = 0; i < tokens.size(); ++i) {
+    const double expected = reference(tokens[i]);
+    if (bits_of(x[i]) != bits_of(expected)) ++mismatches;
+    if (bits_of(model.P[i]) != bits_of(std::abs(expected))) ++mismatches;
+  }
+  CHECK(mismatches == 0);
+}

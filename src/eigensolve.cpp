@@ -475,42 +475,13 @@ void finalize(Engine& eng, std::vector<PencilEigenpair> found, int i0, int i1, P
 /// first_shifts: see detail::rayleigh_iterate.
 PencilSpectrum refine_from(const TridiagonalPencil& p, int i0, int i1,
                            std::vector<std::vector<double>> starts, double residual_tol,
-                           const std::vector<double>& first_shifts) {
+                           const std::vector<double>& first_shifts,
+                           const detail::Prolongation* from = nullptr) {
   Engine eng(p);
   PencilSpectrum out;
   const std::vector<detail::RqiStats> stats =
-      detail::rayleigh_iterate(p, starts, 2, 4, eng.scale, residual_tol, first_shifts);
+      detail::rayleigh_iterate(p, starts, 2, 4, eng.scale, residual_tol, first_shifts, from);
   finalize(eng, eng.finish_all(std::move(starts), true, &stats), i0, i1, out);
-  return out;
-}
-
-/// Linear interpolation of a coarse-mesh vector onto the fine mesh (both meshes select nodes
-/// of the same base mesh x; a Dirichlet end removed from a pencil counts as 0).
-std::vector<double> prolong(const std::vector<double>& x, const TridiagonalPencil& coarse,
-                            const std::vector<double>& xc, const TridiagonalPencil& fine) {
-  const std::size_t last = x.size() - 1;
-  std::vector<std::size_t> cn;
-  std::vector<double> cv;
-  cn.reserve(coarse.size() + 2);
-  cv.reserve(coarse.size() + 2);
-  if (coarse.node.front() != 0) {
-    cn.push_back(0);
-    cv.push_back(0.0);
-  }
-  cn.insert(cn.end(), coarse.node.begin(), coarse.node.end());
-  cv.insert(cv.end(), xc.begin(), xc.end());
-  if (cn.back() != last) {
-    cn.push_back(last);
-    cv.push_back(0.0);
-  }
-  std::vector<double> out(fine.size());
-  std::size_t k = 0;
-  for (std::size_t j = 0; j < fine.size(); ++j) {
-    const std::size_t b = fine.node[j];
-    while (k + 2 < cn.size() && cn[k + 1] < b) ++k;
-    const double t = (x[b] - x[cn[k]]) / (x[cn[k + 1]] - x[cn[k]]);
-    out[j] = (1 - t) * cv[k] + t * cv[k + 1];
-  }
   return out;
 }
 
@@ -572,25 +543,25 @@ nested_solve(const TridiagonalPencil& pf, const detail::MeshLevel& coarse,
   // extrapolated from them (predict_finer).
   std::vector<double> lambda_coarser, lambda_coarse;
   for (auto& c : sb.pairs) {
-    xs.push_back(std::move(c.x));
+    // (When the bottom is `coarse` itself, its pairs are kept whole: they are its spectrum.)
+    if (!lower.empty()) xs.push_back(std::move(c.x));
     lambda_coarse.push_back(c.lambda);
   }
   auto climbed = [&](std::vector<double> lambdas) {
     lambda_coarser = std::move(lambda_coarse);
     lambda_coarse = std::move(lambdas);
   };
-  // Up through the lower levels: one Rayleigh quotient step each (start vectors only).
+  // Up through the lower levels: one Rayleigh quotient step each (start vectors only), each
+  // level's vectors interpolated from the one below as the step loads them.
   const TridiagonalPencil* from = &bottom;
-  for (std::size_t l = lower.size(); l-- > 0;) {
-    const TridiagonalPencil& to = l == 0 ? *pc : lower[l - 1].pencil;
-    for (auto& v : xs) v = prolong(x, *from, v, to);
-    if (l > 0) {
-      std::vector<double> lambdas;
-      for (const auto& st : detail::rayleigh_iterate(to, xs, 1, 1, spectrum_scale(to), 0,
-                                                     predict_finer(lambda_coarse, lambda_coarser)))
-        lambdas.push_back(st.rho);
-      climbed(std::move(lambdas));
-    }
+  for (std::size_t l = lower.size(); l-- > 1;) {
+    const TridiagonalPencil& to = lower[l - 1].pencil;
+    const detail::Prolongation up{x, *from};
+    std::vector<double> lambdas;
+    for (const auto& st : detail::rayleigh_iterate(to, xs, 1, 1, spectrum_scale(to), 0,
+                                                   predict_finer(lambda_coarse, lambda_coarser), &up))
+      lambdas.push_back(st.rho);
+    climbed(std::move(lambdas));
     from = &to;
   }
   PencilSpectrum sc;
@@ -599,7 +570,9 @@ nested_solve(const TridiagonalPencil& pf, const detail::MeshLevel& coarse,
   } else {
     // Its eigenvectors only start the fine mesh's iteration: residual 1e-7 suffices (the
     // eigenvalues are then exact to round-off, being quadratic in the residual).
-    sc = refine_from(*pc, i0, i1, std::move(xs), 1e-7, predict_finer(lambda_coarse, lambda_coarser));
+    const detail::Prolongation up{x, *from};
+    sc = refine_from(*pc, i0, i1, std::move(xs), 1e-7, predict_finer(lambda_coarse, lambda_coarser),
+                     &up);
     sc.iterations = sb.iterations;
   }
   if (sc.status != SolveStatus::ok || static_cast<int>(sc.pairs.size()) != i1 - i0) return std::nullopt;
@@ -607,13 +580,14 @@ nested_solve(const TridiagonalPencil& pf, const detail::MeshLevel& coarse,
   starts.reserve(sc.pairs.size());
   std::vector<double> lambdas;
   for (const auto& c : sc.pairs) {
-    starts.push_back(prolong(x, *pc, c.x, pf));
+    starts.push_back(c.x); // interpolated onto pf as the first step loads it
     lambdas.push_back(c.lambda);
   }
   if (!lower.empty()) climbed(std::move(lambdas));
   else lambda_coarse = std::move(lambdas);
+  const detail::Prolongation up{x, *pc};
   PencilSpectrum sf = refine_from(pf, i0, i1, std::move(starts), 1e-10,
-                                  predict_finer(lambda_coarse, lambda_coarser));
+                                  predict_finer(lambda_coarse, lambda_coarser), &up);
   sf.iterations = sb.iterations;
   sf.shift = sb.shift;
   return std::make_pair(std::move(sf), std::move(sc));

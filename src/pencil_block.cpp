@@ -70,61 +70,228 @@ template <std::size_t B> void count_block(const TridiagonalPencil& p, const doub
   for (std::size_t b = 0; b < B; ++b) out[b] = negative[b];
 }
 
-/// Work arrays of the block step, kept per thread and reused: allocating and zeroing them
-/// for every step cost as much as the arithmetic.
+constexpr std::size_t zero_mark = static_cast<std::size_t>(-1); ///< a removed end: value 0
+constexpr std::size_t end_mark = static_cast<std::size_t>(-2);  ///< ends a source list
+
+/// The arithmetic of a Prolongation onto `fine`. gather(source) is called once with the
+/// coarse nodes in base order, each given as a row of the coarse pencil (or zero_mark for a
+/// removed end), the list ended by end_mark; it returns the coarse values laid out as the
+/// caller wants. Then emit(j, k, t, values) for every fine row j: the value there is
+/// (1 - t) * value k + t * value k + 1 of that list.
+template <class Gather, class Emit>
+void for_prolongation(const Prolongation& from, const TridiagonalPencil& fine, Gather&& gather,
+                      Emit&& emit) {
+  const std::vector<double>& x = from.x;
+  const TridiagonalPencil& coarse = from.coarse;
+  const std::size_t last = x.size() - 1;
+  std::vector<std::size_t> cn, source; // base node and coarse row of each coarse node
+  cn.reserve(coarse.size() + 2);
+  source.reserve(coarse.size() + 3);
+  if (coarse.node.front() != 0) {
+    cn.push_back(0);
+    source.push_back(zero_mark);
+  }
+  for (std::size_t i = 0; i < coarse.size(); ++i) {
+    cn.push_back(coarse.node[i]);
+    source.push_back(i);
+  }
+  if (cn.back() != last) {
+    cn.push_back(last);
+    source.push_back(zero_mark);
+  }
+  source.push_back(end_mark);
+  const double* values = gather(source.data());
+  std::size_t k = 0;
+  for (std::size_t j = 0; j < fine.size(); ++j) {
+    const std::size_t b = fine.node[j];
+    while (k + 2 < cn.size() && cn[k + 1] < b) ++k;
+    const double t = (x[b] - x[cn[k]]) / (x[cn[k + 1]] - x[cn[k]]);
+    emit(j, k, t, values);
+  }
+}
+
+/// Work arrays of the block iteration, kept per thread and reused: allocating and zeroing
+/// them for every call cost as much as the arithmetic.
 struct Workspace {
-  std::vector<double> x, y, l, dinv;
+  std::vector<double> x, y, dinv;
   void reserve(std::size_t size) {
-    for (auto* v : {&x, &y, &l, &dinv})
+    for (auto* v : {&x, &y, &dinv})
       if (v->size() < size) v->resize(size);
   }
 };
 thread_local Workspace t_work;
 
-/// One Rayleigh quotient iteration step for B vectors, held interleaved (x[j * B + b]) in the
-/// thread's workspace. A step is three passes over the mesh: (1) M x, the LDL^T factorization
-/// of K - rho M and the forward substitution together (the Thomas algorithm); (2) the
-/// diagonal scaling and the backward substitution, with max |y|; (3) the new x = y / max |y|
-/// and its Rayleigh quotient (and, on request, a fourth pass for its residual). Values carried
-/// from row to row stay in registers, so the passes run at the latency of their recurrences,
-/// which the B independent columns overlap.
-template <std::size_t B> class RqiStep {
+/// B vectors under Rayleigh quotient iteration, held interleaved (x[j * B + b]) in the thread's
+/// workspace from the first step to the last. The stored columns are unnormalized: vector b
+/// is x[. * B + b] * m_scale[b], the scale applied where the vector is used (in the next
+/// step's M x, the residual, the copy out), so that no pass over the mesh is spent on
+/// normalizing. A step is two passes: (1) M x, the LDL^T factorization of K - s M and the
+/// forward substitution together (the Thomas algorithm); (2) the diagonal scaling, the
+/// backward substitution, max |y| and the Rayleigh quotient of y, whose row products are
+/// formed as soon as the backward sweep has passed a row's neighbours. Values carried from
+/// row to row stay in registers, so the passes run at the latency of their recurrences, which
+/// the B independent columns overlap, and the memory traffic per step is a few reads and
+/// writes of each array (this is what bounds the speed once the arrays leave the caches).
+template <std::size_t B> class RqiBlock {
 public:
-  RqiStep(const TridiagonalPencil& p, double kmax, double mmax)
+  RqiBlock(const TridiagonalPencil& p, double kmax, double mmax)
       : m_p(p), m_n(p.size()), m_kmax(kmax), m_mmax(mmax) {
     t_work.reserve(m_n * B);
+    for (std::size_t b = 0; b < B; ++b) m_scale[b] = 1.0;
   }
 
-  /// rho[b]: the quotient of xs[b] (NaN: computed here); on return the quotient of the new
-  /// vector, and res[b] its residual (when `residual`), or unchanged with ok[b] = false when
-  /// the step gave a zero or non-finite vector (xs[b] is then left as it was).
-  /// `given`: shifts to use instead of the quotients (NaN: the quotient). `stats` receives
-  /// the measurements of the new vectors (res: their relative residuals).
-  void run(std::vector<double>* const* xs, const double* given, double* rho, bool residual,
-           double* res, bool* ok, RqiStats* stats) {
+  /// The vectors xs[b] (of the pencil's size, or with `from` of the coarser pencil, then
+  /// interpolated as they are read).
+  void load(std::vector<double>* const* xs, const Prolongation* from) {
     double* const x = t_work.x.data();
-    for (std::size_t j = 0; j < m_n; ++j)
-      for (std::size_t b = 0; b < B; ++b) x[j * B + b] = (*xs[b])[j];
-    bool known = true;
-    for (std::size_t b = 0; b < B; ++b) known = known && (!std::isnan(rho[b]) || !std::isnan(given[b]));
-    if (!known) {
-      double q[B];
-      quotients(x, q);
-      for (std::size_t b = 0; b < B; ++b)
-        if (std::isnan(rho[b])) rho[b] = q[b];
+    if (!from) {
+      for (std::size_t j = 0; j < m_n; ++j)
+        for (std::size_t b = 0; b < B; ++b) x[j * B + b] = (*xs[b])[j];
+      return;
     }
-    double shift[B];
+    const std::size_t coarse_values = from->coarse.size() + 3; // with both ends and the mark
+    if (t_work.y.size() < coarse_values * B) t_work.y.resize(coarse_values * B);
+    for_prolongation(*from, m_p, [&](const std::size_t* source) {
+      double* c = t_work.y.data(); // the coarse values, interleaved
+      for (std::size_t i = 0; source[i] != end_mark; ++i)
+        for (std::size_t b = 0; b < B; ++b) c[i * B + b] = source[i] == zero_mark ? 0.0 : (*xs[b])[source[i]];
+      return c;
+    }, [&](std::size_t j, std::size_t k, double t, const double* c) {
+      for (std::size_t b = 0; b < B; ++b) x[j * B + b] = (1 - t) * c[k * B + b] + t * c[(k + 1) * B + b];
+    });
+  }
+
+  /// out = vector b as it now stands (resized to the pencil's size).
+  void store(std::size_t b, std::vector<double>& out) const {
+    const double* const x = t_work.x.data();
+    const double s = m_scale[b];
+    out.resize(m_n);
+    for (std::size_t j = 0; j < m_n; ++j) out[j] = x[j * B + b] * s;
+  }
+
+  /// Rayleigh quotients of the vectors, summed as x . (K x): the row sums cancel locally, where
+  /// sum K_ij x_i x_j term by term would lose ~1e-9 relative to cancellation on a 2,000-point
+  /// mesh.
+  void quotients(double* rho) const {
+    double vkv[B] = {}, vmv[B] = {};
+    for_products(t_work.x.data(), [&](std::size_t b, double c, double kv, double mv, double, double) {
+      vkv[b] += c * kv;
+      vmv[b] += c * mv;
+    });
+    for (std::size_t b = 0; b < B; ++b) rho[b] = vkv[b] / vmv[b];
+  }
+
+  /// y = (K - s M)^{-1} M x per column, into the second work array; q[b] its Rayleigh
+  /// quotient, ymy[b] = y^T M y and big[b] = max |y|. The vectors are not changed until
+  /// accept().
+  void step(const double* s, double* q, double* ymy, double* big) {
+    const std::size_t n = m_n;
+    const double* const x = t_work.x.data();
+    double* const y = t_work.y.data();
+    double* const dv = t_work.dinv.data();
+    const double* const kd = m_p.k_diag.data();
+    const double* const md = m_p.m_diag.data();
+    const double* const ko = m_p.k_off.data();
+    const double* const mo = m_p.m_off.data();
+    double floor[B], l_prev[B], y_prev[B];
     for (std::size_t b = 0; b < B; ++b) {
-      shift[b] = std::isnan(given[b]) ? rho[b] : given[b];
-      if (!std::isfinite(shift[b])) shift[b] = 0.0;
+      floor[b] = (m_kmax + std::abs(s[b]) * m_mmax) * eps * eps;
+      l_prev[b] = 0.0;
+      y_prev[b] = 0.0;
     }
-    double xmx[B];
-    step(shift, rho, ok, xmx);
-    for (std::size_t b = 0; b < B; ++b) stats[b] = {rho[b], xmx[b], nan_, nan_, nan_, nan_};
-    if (residual) residuals(rho, res, stats);
-    for (std::size_t j = 0; j < m_n; ++j)
-      for (std::size_t b = 0; b < B; ++b)
-        if (ok[b]) (*xs[b])[j] = x[j * B + b];
+    // (1) factor + forward substitution (the end rows apart: no tests in the inner loop).
+    static constexpr double zeros[B] = {};
+    auto forward = [&](std::size_t j, double kdj, double mdj, double ko_prev, double mo_prev,
+                       double koj, double moj, const double* xl, const double* xr) {
+      const double* xc = x + j * B;
+      for (std::size_t b = 0; b < B; ++b) {
+        const double mx = (mdj * xc[b] + mo_prev * xl[b] + moj * xr[b]) * m_scale[b];
+        double d = kdj - s[b] * mdj - l_prev[b] * (ko_prev - s[b] * mo_prev);
+        if (std::abs(d) < floor[b]) d = d < 0 ? -floor[b] : floor[b]; // singular: stay finite
+        const double dinv = 1.0 / d;
+        y_prev[b] = mx - l_prev[b] * y_prev[b];
+        l_prev[b] = (koj - s[b] * moj) * dinv;
+        y[j * B + b] = y_prev[b];
+        dv[j * B + b] = dinv;
+      }
+    };
+    {
+      const auto [kd0, md0, ko_prev, mo_prev, ko0, mo0] = row(0);
+      forward(0, kd0, md0, ko_prev, mo_prev, ko0, mo0, zeros, n > 1 ? x + B : zeros);
+    }
+    for (std::size_t j = 1; j + 1 < n; ++j)
+      forward(j, kd[j], md[j], ko[j - 1], mo[j - 1], ko[j], mo[j], x + (j - 1) * B, x + (j + 1) * B);
+    if (n > 1) {
+      const auto [kdl, mdl, ko_prev, mo_prev, kol, mol] = row(n - 1);
+      forward(n - 1, kdl, mdl, ko_prev, mo_prev, kol, mol, x + (n - 2) * B, zeros);
+    }
+    // (2) scaling + backward substitution (l_j recomputed from 1/d_j rather than stored),
+    // with the quotient of y: once y_j is known, row j + 1 of K y and M y is complete.
+    double y1[B], y2[B], ykv[B], ymv[B]; // y_{j+1}, y_{j+2}, running sums
+    for (std::size_t b = 0; b < B; ++b) {
+      const std::size_t i = (n - 1) * B + b;
+      y1[b] = y[i] * dv[i];
+      y[i] = y1[b];
+      big[b] = std::abs(y1[b]);
+      y2[b] = ykv[b] = ymv[b] = 0.0;
+    }
+    // Row j of the sweep; kd1, md1: diagonal of row j + 1; ko1, mo1: its upper neighbour.
+    auto backward = [&](std::size_t j, double koj, double moj, double kd1, double md1, double ko1,
+                        double mo1) {
+      for (std::size_t b = 0; b < B; ++b) {
+        const std::size_t i = j * B + b;
+        const double l = (koj - s[b] * moj) * dv[i];
+        const double y0 = y[i] * dv[i] - l * y1[b];
+        y[i] = y0;
+        big[b] = std::max(big[b], std::abs(y0));
+        const double kv = kd1 * y1[b] + koj * y0 + ko1 * y2[b];
+        const double mv = md1 * y1[b] + moj * y0 + mo1 * y2[b];
+        ykv[b] += y1[b] * kv;
+        ymv[b] += y1[b] * mv;
+        y2[b] = y1[b];
+        y1[b] = y0;
+      }
+    };
+    if (n > 1) backward(n - 2, ko[n - 2], mo[n - 2], kd[n - 1], md[n - 1], 0.0, 0.0);
+    for (std::size_t j = n - 2; j-- > 0;) backward(j, ko[j], mo[j], kd[j + 1], md[j + 1], ko[j + 1], mo[j + 1]);
+    const double ko0 = n > 1 ? ko[0] : 0.0, mo0 = n > 1 ? mo[0] : 0.0;
+    for (std::size_t b = 0; b < B; ++b) { // row 0
+      ykv[b] += y1[b] * (kd[0] * y1[b] + ko0 * y2[b]);
+      ymv[b] += y1[b] * (md[0] * y1[b] + mo0 * y2[b]);
+      q[b] = ykv[b] / ymv[b];
+      ymy[b] = ymv[b];
+    }
+  }
+
+  /// The vectors become those of the last step, vector b scaled by scale[b].
+  void accept(const double* scale) {
+    std::swap(t_work.x, t_work.y);
+    for (std::size_t b = 0; b < B; ++b) m_scale[b] = scale[b];
+  }
+
+  /// ||K x - rho M x|| / (||K x|| + |rho| ||M x||) per column, the norms, and the residual's
+  /// round-off level eps || |K||x| + |rho||M||x| || / (same denominator): res[b] is reported as
+  /// 0 when below ten times that level (iterating cannot lower it further).
+  void residuals(const double* rho, double* res, RqiStats* stats) const {
+    double r2[B] = {}, k2[B] = {}, m2[B] = {}, a2[B] = {};
+    for_products(t_work.x.data(), [&](std::size_t b, double, double kx, double mx, double ak, double am) {
+      const double e = kx - rho[b] * mx, a = ak + std::abs(rho[b]) * am;
+      r2[b] += e * e;
+      k2[b] += kx * kx;
+      m2[b] += mx * mx;
+      a2[b] += a * a;
+    });
+    for (std::size_t b = 0; b < B; ++b) {
+      const double denom = std::sqrt(k2[b]) + std::abs(rho[b]) * std::sqrt(m2[b]);
+      const double floor = denom > 0 ? eps * std::sqrt(a2[b]) / denom : 0.0;
+      res[b] = denom > 0 ? std::sqrt(r2[b]) / denom : 0.0;
+      if (res[b] <= 10 * floor) res[b] = 0.0;
+      const double s = m_scale[b]; // the norms of the scaled vector
+      stats[b].r_norm = std::sqrt(r2[b]) * s;
+      stats[b].kx_norm = std::sqrt(k2[b]) * s;
+      stats[b].mx_norm = std::sqrt(m2[b]) * s;
+      stats[b].a_norm = std::sqrt(a2[b]) * s;
+    }
   }
 
 private:
@@ -169,117 +336,81 @@ private:
     if (n > 1) rows(n - 1, v + (n - 2) * B, zeros);
   }
 
-  /// Rayleigh quotients of the interleaved columns of v, summed as v . (K v): the row sums
-  /// cancel locally, where sum K_ij v_i v_j term by term would lose ~1e-9 relative to
-  /// cancellation on a 2,000-point mesh.
-  void quotients(const double* v, double* rho, double* vmv_out = nullptr) const {
-    double vkv[B] = {}, vmv[B] = {};
-    for_products(v, [&](std::size_t b, double c, double kv, double mv, double, double) {
-      vkv[b] += c * kv;
-      vmv[b] += c * mv;
-    });
-    for (std::size_t b = 0; b < B; ++b) {
-      rho[b] = vkv[b] / vmv[b];
-      if (vmv_out) vmv_out[b] = vmv[b];
-    }
-  }
-
-  /// ||K x - rho M x|| / (||K x|| + |rho| ||M x||) per column, the norms, and the residual's
-  /// round-off level eps || |K||x| + |rho||M||x| || / (same denominator): res[b] is reported as
-  /// 0 when below ten times that level (iterating cannot lower it further).
-  void residuals(const double* rho, double* res, RqiStats* stats) const {
-    double r2[B] = {}, k2[B] = {}, m2[B] = {}, a2[B] = {};
-    for_products(t_work.x.data(), [&](std::size_t b, double, double kx, double mx, double ak, double am) {
-      const double e = kx - rho[b] * mx, a = ak + std::abs(rho[b]) * am;
-      r2[b] += e * e;
-      k2[b] += kx * kx;
-      m2[b] += mx * mx;
-      a2[b] += a * a;
-    });
-    for (std::size_t b = 0; b < B; ++b) {
-      const double denom = std::sqrt(k2[b]) + std::abs(rho[b]) * std::sqrt(m2[b]);
-      const double floor = denom > 0 ? eps * std::sqrt(a2[b]) / denom : 0.0;
-      res[b] = denom > 0 ? std::sqrt(r2[b]) / denom : 0.0;
-      if (res[b] <= 10 * floor) res[b] = 0.0;
-      stats[b].r_norm = std::sqrt(r2[b]);
-      stats[b].kx_norm = std::sqrt(k2[b]);
-      stats[b].mx_norm = std::sqrt(m2[b]);
-      stats[b].a_norm = std::sqrt(a2[b]);
-    }
-  }
-
-
-  /// y = (K - s M)^{-1} M x per column; usable columns take x = y / max|y| and rho = its
-  /// quotient (ok[b] says which).
-  void step(const double* s, double* rho, bool* ok, double* xmx) {
-    const std::size_t n = m_n;
-    double* const x = t_work.x.data();
-    double* const y = t_work.y.data();
-    double* const lv = t_work.l.data();
-    double* const dv = t_work.dinv.data();
-    double floor[B], l_prev[B], y_prev[B];
-    for (std::size_t b = 0; b < B; ++b) {
-      floor[b] = (m_kmax + std::abs(s[b]) * m_mmax) * eps * eps;
-      l_prev[b] = 0.0;
-      y_prev[b] = 0.0;
-    }
-    // (1) factor + forward substitution (the end rows apart: no tests in the inner loop).
-    static constexpr double zeros[B] = {};
-    auto forward = [&](std::size_t j, double kd, double md, double ko_prev, double mo_prev,
-                       double ko, double mo, const double* xl, const double* xr) {
-      const double* xc = x + j * B;
-      for (std::size_t b = 0; b < B; ++b) {
-        const double mx = md * xc[b] + mo_prev * xl[b] + mo * xr[b];
-        double d = kd - s[b] * md - l_prev[b] * (ko_prev - s[b] * mo_prev);
-        if (std::abs(d) < floor[b]) d = d < 0 ? -floor[b] : floor[b]; // singular: stay finite
-        const double dinv = 1.0 / d;
-        y_prev[b] = mx - l_prev[b] * y_prev[b];
-        l_prev[b] = (ko - s[b] * mo) * dinv;
-        y[j * B + b] = y_prev[b];
-        lv[j * B + b] = l_prev[b];
-        dv[j * B + b] = dinv;
-      }
-    };
-    {
-      const auto [kd, md, ko_prev, mo_prev, ko, mo] = row(0);
-      forward(0, kd, md, ko_prev, mo_prev, ko, mo, zeros, n > 1 ? x + B : zeros);
-    }
-    for (std::size_t j = 1; j + 1 < n; ++j)
-      forward(j, m_p.k_diag[j], m_p.m_diag[j], m_p.k_off[j - 1], m_p.m_off[j - 1], m_p.k_off[j],
-              m_p.m_off[j], x + (j - 1) * B, x + (j + 1) * B);
-    if (n > 1) {
-      const auto [kd, md, ko_prev, mo_prev, ko, mo] = row(n - 1);
-      forward(n - 1, kd, md, ko_prev, mo_prev, ko, mo, x + (n - 2) * B, zeros);
-    }
-    // (2) scaling + backward substitution.
-    double next[B], big[B];
-    for (std::size_t b = 0; b < B; ++b) next[b] = big[b] = 0.0;
-    for (std::size_t j = n; j-- > 0;) {
-      for (std::size_t b = 0; b < B; ++b) {
-        next[b] = y[j * B + b] * dv[j * B + b] - lv[j * B + b] * next[b];
-        y[j * B + b] = next[b];
-        big[b] = std::max(big[b], std::abs(next[b]));
-      }
-    }
-    // (3) new x and its quotient.
-    double q[B], ymy[B];
-    quotients(y, q, ymy);
-    double inv[B];
-    for (std::size_t b = 0; b < B; ++b) {
-      ok[b] = big[b] > 0 && std::isfinite(big[b]) && std::isfinite(q[b]);
-      inv[b] = ok[b] ? 1.0 / big[b] : 0.0;
-      xmx[b] = ymy[b] * inv[b] * inv[b];
-      if (ok[b]) rho[b] = q[b];
-    }
-    for (std::size_t j = 0; j < n; ++j)
-      for (std::size_t b = 0; b < B; ++b) x[j * B + b] = y[j * B + b] * inv[b];
-  }
-
-  static constexpr double nan_ = std::numeric_limits<double>::quiet_NaN();
   const TridiagonalPencil& m_p;
   std::size_t m_n;
   double m_kmax, m_mmax;
+  double m_scale[B];
 };
+
+/// rayleigh_iterate for one block of B vectors (see pencil_block.hpp for the rules).
+template <std::size_t B>
+void iterate_block(const TridiagonalPencil& p, std::vector<double>* const* xs, const double* first_shift,
+                   int min_steps, int max_steps, double scale, double residual_tol, double kmax,
+                   double mmax, const Prolongation* from, RqiStats* stats) {
+  constexpr double nan = std::numeric_limits<double>::quiet_NaN();
+  RqiBlock<B> block(p, kmax, mmax);
+  block.load(xs, from);
+  double rho[B], previous[B], res[B];
+  bool active[B];
+  bool quotient_needed = false;
+  for (std::size_t b = 0; b < B; ++b) {
+    rho[b] = previous[b] = res[b] = nan;
+    active[b] = true;
+    stats[b] = RqiStats{nan, nan, nan, nan, nan, nan};
+    quotient_needed = quotient_needed || std::isnan(first_shift[b]);
+  }
+  if (quotient_needed) block.quotients(rho);
+  for (int it = 0; it < max_steps; ++it) {
+    bool any = false;
+    for (std::size_t b = 0; b < B; ++b) {
+      if (!active[b]) continue;
+      // Converged once the quotient stops moving (cubic convergence: another step would change
+      // nothing) or the residual is small enough.
+      if (it >= min_steps &&
+          std::abs(rho[b] - previous[b]) <= 1e-14 * std::abs(rho[b]) + 4 * eps * scale)
+        active[b] = false;
+      if (residual_tol > 0 && res[b] <= residual_tol) active[b] = false;
+      previous[b] = rho[b];
+      if (active[b]) any = true;
+      else block.store(b, *xs[b]);
+    }
+    if (!any) return;
+    double shift[B], q[B], ymy[B], big[B], next_scale[B];
+    for (std::size_t b = 0; b < B; ++b) {
+      shift[b] = it == 0 && !std::isnan(first_shift[b]) ? first_shift[b] : rho[b];
+      if (!std::isfinite(shift[b])) shift[b] = 0.0;
+    }
+    block.step(shift, q, ymy, big);
+    for (std::size_t b = 0; b < B; ++b) {
+      next_scale[b] = 0.0; // columns no longer followed: anything finite
+      if (!active[b]) continue;
+      if (!(big[b] > 0 && std::isfinite(big[b]) && std::isfinite(q[b]))) {
+        block.store(b, *xs[b]); // zero or non-finite: keep the last good vector
+        active[b] = false;
+        continue;
+      }
+      next_scale[b] = 1.0 / big[b];
+      rho[b] = q[b];
+      stats[b] = {q[b], ymy[b] * next_scale[b] * next_scale[b], nan, nan, nan, nan};
+    }
+    block.accept(next_scale);
+    if (residual_tol > 0) {
+      double r[B];
+      RqiStats st[B];
+      block.residuals(rho, r, st);
+      for (std::size_t b = 0; b < B; ++b) {
+        if (!active[b]) continue;
+        res[b] = r[b];
+        stats[b].r_norm = st[b].r_norm;
+        stats[b].kx_norm = st[b].kx_norm;
+        stats[b].mx_norm = st[b].mx_norm;
+        stats[b].a_norm = st[b].a_norm;
+      }
+    }
+  }
+  for (std::size_t b = 0; b < B; ++b)
+    if (active[b]) block.store(b, *xs[b]);
+}
 
 } // namespace
 
@@ -294,9 +425,11 @@ std::vector<int> inertia_below_many(const TridiagonalPencil& p, const std::vecto
 std::vector<RqiStats> rayleigh_iterate(const TridiagonalPencil& p,
                                      std::vector<std::vector<double>>& xs, int min_steps,
                                      int max_steps, double scale, double residual_tol,
-                                     const std::vector<double>& first_shifts) {
+                                     const std::vector<double>& first_shifts,
+                                     const Prolongation* from) {
+  const std::size_t expected = from ? from->coarse.size() : p.size();
   for (const auto& x : xs)
-    if (x.size() != p.size()) throw UsageError("Rayleigh quotient iteration: vector of the wrong size");
+    if (x.size() != expected) throw UsageError("Rayleigh quotient iteration: vector of the wrong size");
   double kmax = 0, mmax = 0;
   for (std::size_t j = 0; j < p.size(); ++j) {
     kmax = std::max(kmax, std::abs(p.k_diag[j]));
@@ -304,50 +437,22 @@ std::vector<RqiStats> rayleigh_iterate(const TridiagonalPencil& p,
   }
   const std::size_t count = xs.size();
   const double nan = std::numeric_limits<double>::quiet_NaN();
-  std::vector<double> rho(count, nan), previous(count, nan), res(count, nan);
   std::vector<RqiStats> stats(count, RqiStats{nan, nan, nan, nan, nan, nan});
-  std::vector<char> active(count, 1);
-  for (int it = 0; it < max_steps; ++it) {
-    // Each round steps only the vectors still active, in blocks of up to max_width.
-    std::vector<std::size_t> todo;
-    for (std::size_t i = 0; i < count; ++i) {
-      if (!active[i]) continue;
-      // Converged once the quotient stops moving (cubic convergence: another step would change
-      // nothing) or the residual is small enough.
-      if (it >= min_steps &&
-          std::abs(rho[i] - previous[i]) <= 1e-14 * std::abs(rho[i]) + 4 * eps * scale)
-        active[i] = 0;
-      if (residual_tol > 0 && res[i] <= residual_tol) active[i] = 0;
-      previous[i] = rho[i];
-      if (active[i]) todo.push_back(i);
+  // Blocks of up to max_width vectors, each iterated to the end on its own (a vector that has
+  // converged rides along with its block at no extra pass over the mesh).
+  for_chunks(count, [&](std::size_t first, std::size_t width) {
+    std::vector<double>* ptr[max_width];
+    double given[max_width];
+    for (std::size_t b = 0; b < width; ++b) {
+      const std::size_t i = first + b;
+      ptr[b] = &xs[i];
+      given[b] = i < first_shifts.size() ? first_shifts[i] : nan;
     }
-    if (todo.empty()) break;
-    for_chunks(todo.size(), [&](std::size_t first, std::size_t width) {
-      std::vector<double>* ptr[max_width];
-      double r[max_width], e[max_width], given[max_width];
-      bool ok[max_width];
-      RqiStats st[max_width];
-      for (std::size_t b = 0; b < width; ++b) {
-        const std::size_t i = todo[first + b];
-        ptr[b] = &xs[i];
-        r[b] = rho[i];
-        given[b] = it == 0 && i < first_shifts.size() ? first_shifts[i] : nan;
-      }
-      with_width(width, [&](auto w) {
-        RqiStep<decltype(w)::value>(p, kmax, mmax).run(ptr, given, r, residual_tol > 0, e, ok, st);
-      });
-      for (std::size_t b = 0; b < width; ++b) {
-        const std::size_t i = todo[first + b];
-        if (!ok[b]) {
-          active[i] = 0; // zero or non-finite: keep the last good vector
-          continue;
-        }
-        rho[i] = r[b];
-        res[i] = e[b];
-        stats[i] = st[b];
-      }
+    with_width(width, [&](auto w) {
+      iterate_block<decltype(w)::value>(p, ptr, given, min_steps, max_steps, scale, residual_tol,
+                                        kmax, mmax, from, &stats[first]);
     });
-  }
+  });
   return stats;
 }
 

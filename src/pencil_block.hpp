@@ -40,10 +40,26 @@ struct RqiStats {
 /// quotient when given (and not NaN): a better estimate of the eigenvalue, e.g. extrapolated
 /// from coarser meshes, makes that step far more effective. Returns what the last step of each
 /// vector measured (see RqiStats).
+/// With `from`: xs hold vectors of the coarser pencil from->coarse instead, linearly
+/// interpolated onto p's rows as they are loaded (see Prolongation), and are replaced by
+/// vectors of p's size.
+struct Prolongation;
 std::vector<RqiStats> rayleigh_iterate(const TridiagonalPencil& p,
                                      std::vector<std::vector<double>>& xs, int min_steps,
                                      int max_steps, double scale, double residual_tol = 0,
-                                     const std::vector<double>& first_shifts = {});
+                                     const std::vector<double>& first_shifts = {},
+                                     const Prolongation* from = nullptr);
+
+/// Linear interpolation of vectors of a coarser pencil onto a finer one, both selecting nodes
+/// of the same base mesh with coordinates x (pencil.node: base node of each row). A base end
+/// node without a row (a removed Dirichlet end) counts as 0. Fine row j at base coordinate
+/// x_j between consecutive coarse nodes a < b takes (1 - t) c_a + t c_b, t = (x_j - x_a) /
+/// (x_b - x_a).
+struct Prolongation {
+  const std::vector<double>& x;
+  const TridiagonalPencil& coarse;
+};
+
 
 /// A coarse level of a nested family of linear-element meshes: the node list (indices into
 /// the base mesh, including a Dirichlet end whose unknown is removed) and its pencil.

@@ -44,30 +44,33 @@ template <class F> void for_chunks(std::size_t total, F&& chunk) {
 }
 
 /// Inertia counts for B shifts: the arithmetic of inertia_below (discretize.cpp), per shift.
+/// Written without branches (the end rows apart) so that the compiler can pair the shifts'
+/// divisions in vector instructions; the operations per shift are the same, so are the counts.
 template <std::size_t B> void count_block(const TridiagonalPencil& p, const double* s, int* out) {
   const std::size_t n = p.size();
-  int negative[B];
-  double d[B], e_prev[B];
+  const double* const kd = p.k_diag.data();
+  const double* const md = p.m_diag.data();
+  const double* const ko = p.k_off.data();
+  const double* const mo = p.m_off.data();
+  double negative[B], d[B], e_prev[B], shift[B];
   for (std::size_t b = 0; b < B; ++b) {
-    negative[b] = 0;
-    d[b] = 1.0;
-    e_prev[b] = 0.0;
+    shift[b] = s[b];
+    double piv = kd[0] - shift[b] * md[0];
+    piv = piv == 0.0 ? -1e-300 : piv;
+    negative[b] = piv < 0.0 ? 1.0 : 0.0;
+    d[b] = piv;
   }
-  for (std::size_t j = 0; j < n; ++j) {
-    const double kd = p.k_diag[j], md = p.m_diag[j];
+  for (std::size_t j = 1; j < n; ++j) {
+    const double koj = ko[j - 1], moj = mo[j - 1], kdj = kd[j], mdj = md[j];
     for (std::size_t b = 0; b < B; ++b) {
-      double piv = kd - s[b] * md;
-      if (j > 0) piv -= e_prev[b] * e_prev[b] / d[b];
-      if (piv == 0.0) piv = -1e-300;
-      if (piv < 0.0) ++negative[b];
+      e_prev[b] = koj - shift[b] * moj;
+      double piv = (kdj - shift[b] * mdj) - e_prev[b] * e_prev[b] / d[b];
+      piv = piv == 0.0 ? -1e-300 : piv;
+      negative[b] += piv < 0.0 ? 1.0 : 0.0;
       d[b] = piv;
     }
-    if (j + 1 < n) {
-      const double ko = p.k_off[j], mo = p.m_off[j];
-      for (std::size_t b = 0; b < B; ++b) e_prev[b] = ko - s[b] * mo;
-    }
   }
-  for (std::size_t b = 0; b < B; ++b) out[b] = negative[b];
+  for (std::size_t b = 0; b < B; ++b) out[b] = static_cast<int>(negative[b]);
 }
 
 constexpr std::size_t zero_mark = static_cast<std::size_t>(-1); ///< a removed end: value 0
@@ -161,12 +164,28 @@ public:
     });
   }
 
-  /// out = vector b as it now stands (resized to the pencil's size).
-  void store(std::size_t b, std::vector<double>& out) const {
+  /// *xs[b] = vector b as it now stands (resized to the pencil's size), for every b with
+  /// which[b], in one pass over the block.
+  void store(const bool* which, std::vector<double>* const* xs) const {
+    double* out[B];
+    std::size_t k = 0;
+    std::size_t column[B];
+    double s[B];
+    for (std::size_t b = 0; b < B; ++b) {
+      if (!which[b]) continue;
+      xs[b]->resize(m_n);
+      out[k] = xs[b]->data();
+      column[k] = b;
+      s[k++] = m_scale[b];
+    }
     const double* const x = t_work.x.data();
-    const double s = m_scale[b];
-    out.resize(m_n);
-    for (std::size_t j = 0; j < m_n; ++j) out[j] = x[j * B + b] * s;
+    if (k == B) { // the usual case: every column, a fixed inner loop
+      for (std::size_t j = 0; j < m_n; ++j)
+        for (std::size_t b = 0; b < B; ++b) out[b][j] = x[j * B + b] * s[b];
+      return;
+    }
+    for (std::size_t j = 0; j < m_n; ++j)
+      for (std::size_t c = 0; c < k; ++c) out[c][j] = x[j * B + column[c]] * s[c];
   }
 
   /// Rayleigh quotients of the vectors, summed as x . (K x): the row sums cancel locally, where
@@ -361,7 +380,7 @@ void iterate_block(const TridiagonalPencil& p, std::vector<double>* const* xs, c
   }
   if (quotient_needed) block.quotients(rho);
   for (int it = 0; it < max_steps; ++it) {
-    bool any = false;
+    bool any = false, done[B] = {};
     for (std::size_t b = 0; b < B; ++b) {
       if (!active[b]) continue;
       // Converged once the quotient stops moving (cubic convergence: another step would change
@@ -372,8 +391,9 @@ void iterate_block(const TridiagonalPencil& p, std::vector<double>* const* xs, c
       if (residual_tol > 0 && res[b] <= residual_tol) active[b] = false;
       previous[b] = rho[b];
       if (active[b]) any = true;
-      else block.store(b, *xs[b]);
+      else done[b] = true;
     }
+    block.store(done, xs); // the vectors that have converged
     if (!any) return;
     double shift[B], q[B], ymy[B], big[B], next_scale[B];
     for (std::size_t b = 0; b < B; ++b) {
@@ -381,11 +401,12 @@ void iterate_block(const TridiagonalPencil& p, std::vector<double>* const* xs, c
       if (!std::isfinite(shift[b])) shift[b] = 0.0;
     }
     block.step(shift, q, ymy, big);
+    bool failed[B] = {};
     for (std::size_t b = 0; b < B; ++b) {
       next_scale[b] = 0.0; // columns no longer followed: anything finite
       if (!active[b]) continue;
       if (!(big[b] > 0 && std::isfinite(big[b]) && std::isfinite(q[b]))) {
-        block.store(b, *xs[b]); // zero or non-finite: keep the last good vector
+        failed[b] = true; // zero or non-finite: keep the last good vector
         active[b] = false;
         continue;
       }
@@ -393,6 +414,7 @@ void iterate_block(const TridiagonalPencil& p, std::vector<double>* const* xs, c
       rho[b] = q[b];
       stats[b] = {q[b], ymy[b] * next_scale[b] * next_scale[b], nan, nan, nan, nan};
     }
+    block.store(failed, xs);
     block.accept(next_scale);
     if (residual_tol > 0) {
       double r[B];
@@ -408,8 +430,7 @@ void iterate_block(const TridiagonalPencil& p, std::vector<double>* const* xs, c
       }
     }
   }
-  for (std::size_t b = 0; b < B; ++b)
-    if (active[b]) block.store(b, *xs[b]);
+  block.store(active, xs);
 }
 
 } // namespace

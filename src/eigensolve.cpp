@@ -711,11 +711,21 @@ PencilSpectrum solve_pencil(const TridiagonalPencil& p, const PencilRequest& req
 
 namespace {
 
+/// max |x_i| (0 for an empty x; NaN entries are skipped, as std::max skips them). Four
+/// running maxima: one alone is a chain of dependent max operations, several times slower.
+double max_abs(const std::vector<double>& x) {
+  double m[4] = {0.0, 0.0, 0.0, 0.0};
+  const std::size_t n = x.size(), quads = n / 4 * 4;
+  for (std::size_t i = 0; i < quads; i += 4)
+    for (std::size_t k = 0; k < 4; ++k) m[k] = std::max(m[k], std::abs(x[i + k]));
+  for (std::size_t i = quads; i < n; ++i) m[0] = std::max(m[0], std::abs(x[i]));
+  return std::max(std::max(m[0], m[1]), std::max(m[2], m[3]));
+}
+
 /// Sign changes of xi, ignoring entries below 1e-9 max|xi| (the exact zero at a rigid inner
 /// boundary and round-off next to it).
 int count_nodes(const std::vector<double>& xi) {
-  double big = 0;
-  for (const double v : xi) big = std::max(big, std::abs(v));
+  const double big = max_abs(xi);
   const double threshold = 1e-9 * big;
   int nodes = 0, sign = 0;
   for (const double v : xi) {
@@ -949,8 +959,7 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
     // xi at every node (0 at a rigid inner node), normalized to xi(R) = 1.
     m.xi.assign(out.node_r.size(), 0.0);
     for (std::size_t j = 0; j < e.x.size(); ++j) m.xi[pf.node[j]] = e.x[j];
-    double big = 0;
-    for (const double v : m.xi) big = std::max(big, std::abs(v));
+    const double big = max_abs(m.xi);
     const double surface = m.xi.back();
     if (std::abs(surface) > 1e-8 * big) {
       for (double& v : m.xi) v /= surface;

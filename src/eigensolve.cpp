@@ -467,6 +467,13 @@ void finalize(Engine& eng, std::vector<PencilEigenpair> found, int i0, int i1, P
   }
 }
 
+/// Rows x vectors over the steps recorded in `stats` (PencilSpectrum::iteration_work).
+std::size_t iteration_work(const std::vector<detail::RqiStats>& stats, std::size_t rows) {
+  std::size_t steps = 0;
+  for (const auto& st : stats) steps += static_cast<std::size_t>(st.steps);
+  return steps * rows;
+}
+
 /// Rayleigh quotient iteration from good start vectors (e.g. eigenvectors of a coarser mesh
 /// prolonged to this one): one to four steps, each an O(N) LDL^T factorization and solve (all
 /// vectors advanced together, see pencil_block.hpp), until the residual is below
@@ -481,6 +488,7 @@ PencilSpectrum refine_from(const TridiagonalPencil& p, int i0, int i1,
   PencilSpectrum out;
   const std::vector<detail::RqiStats> stats =
       detail::rayleigh_iterate(p, starts, 2, 4, eng.scale, residual_tol, first_shifts, from);
+  out.iteration_work = iteration_work(stats, p.size());
   finalize(eng, eng.finish_all(std::move(starts), true, &stats), i0, i1, out);
   return out;
 }
@@ -554,13 +562,15 @@ nested_solve(const TridiagonalPencil& pf, const detail::MeshLevel& coarse,
   // Up through the lower levels: one Rayleigh quotient step each (start vectors only), each
   // level's vectors interpolated from the one below as the step loads them.
   const TridiagonalPencil* from = &bottom;
+  std::size_t lower_work = sb.iteration_work;
   for (std::size_t l = lower.size(); l-- > 1;) {
     const TridiagonalPencil& to = lower[l - 1].pencil;
     const detail::Prolongation up{x, *from};
     std::vector<double> lambdas;
-    for (const auto& st : detail::rayleigh_iterate(to, xs, 1, 1, spectrum_scale(to), 0,
-                                                   predict_finer(lambda_coarse, lambda_coarser), &up))
-      lambdas.push_back(st.rho);
+    const std::vector<detail::RqiStats> stats = detail::rayleigh_iterate(
+        to, xs, 1, 1, spectrum_scale(to), 0, predict_finer(lambda_coarse, lambda_coarser), &up);
+    for (const auto& st : stats) lambdas.push_back(st.rho);
+    lower_work += iteration_work(stats, to.size());
     climbed(std::move(lambdas));
     from = &to;
   }
@@ -574,6 +584,7 @@ nested_solve(const TridiagonalPencil& pf, const detail::MeshLevel& coarse,
     sc = refine_from(*pc, i0, i1, std::move(xs), 1e-7, predict_finer(lambda_coarse, lambda_coarser),
                      &up);
     sc.iterations = sb.iterations;
+    sc.iteration_work += lower_work;
   }
   if (sc.status != SolveStatus::ok || static_cast<int>(sc.pairs.size()) != i1 - i0) return std::nullopt;
   std::vector<std::vector<double>> starts;
@@ -589,6 +600,7 @@ nested_solve(const TridiagonalPencil& pf, const detail::MeshLevel& coarse,
   PencilSpectrum sf = refine_from(pf, i0, i1, std::move(starts), 1e-10,
                                   predict_finer(lambda_coarse, lambda_coarser), &up);
   sf.iterations = sb.iterations;
+  sf.iteration_work += sc.iteration_work;
   sf.shift = sb.shift;
   return std::make_pair(std::move(sf), std::move(sc));
 }
@@ -694,6 +706,7 @@ PencilSpectrum solve_pencil(const TridiagonalPencil& p, const PencilRequest& req
         // Polish: Rayleigh quotient iteration until the residual is below 1e-10 (one step
         // for most vectors; Ritz vectors far from the shift may need two or three).
         const std::vector<detail::RqiStats> stats = detail::rayleigh_iterate(p, xs, 1, 3, eng.scale, 1e-10);
+        out.iteration_work += iteration_work(stats, p.size());
         found = eng.finish_all(std::move(xs), true, &stats);
       }
       if (eigs.info() != Spectra::CompInfo::Successful) {

@@ -375,7 +375,7 @@ void iterate_block(const TridiagonalPencil& p, std::vector<double>* const* xs, c
   for (std::size_t b = 0; b < B; ++b) {
     rho[b] = previous[b] = res[b] = nan;
     active[b] = true;
-    stats[b] = RqiStats{nan, nan, nan, nan, nan, nan};
+    stats[b] = RqiStats{nan, nan, nan, nan, nan, nan, 0};
     quotient_needed = quotient_needed || std::isnan(first_shift[b]);
   }
   if (quotient_needed) block.quotients(rho);
@@ -412,8 +412,9 @@ void iterate_block(const TridiagonalPencil& p, std::vector<double>* const* xs, c
       }
       next_scale[b] = 1.0 / big[b];
       rho[b] = q[b];
-      stats[b] = {q[b], ymy[b] * next_scale[b] * next_scale[b], nan, nan, nan, nan};
+      stats[b] = {q[b], ymy[b] * next_scale[b] * next_scale[b], nan, nan, nan, nan, 0};
     }
+    for (std::size_t b = 0; b < B; ++b) stats[b].steps = it + 1;
     block.store(failed, xs);
     block.accept(next_scale);
     if (residual_tol > 0) {
@@ -458,7 +459,7 @@ std::vector<RqiStats> rayleigh_iterate(const TridiagonalPencil& p,
   }
   const std::size_t count = xs.size();
   const double nan = std::numeric_limits<double>::quiet_NaN();
-  std::vector<RqiStats> stats(count, RqiStats{nan, nan, nan, nan, nan, nan});
+  std::vector<RqiStats> stats(count, RqiStats{nan, nan, nan, nan, nan, nan, 0});
   // Blocks of up to max_width vectors, each iterated to the end on its own (a vector that has
   // converged rides along with its block at no extra pass over the mesh).
   for_chunks(count, [&](std::size_t first, std::size_t width) {

@@ -28,6 +28,7 @@ struct RqiStats {
   double kx_norm; ///< ||K x||
   double mx_norm; ///< ||M x||
   double a_norm;  ///< || |K||x| + |rho||M||x| || (round-off scale of the residual)
+  int steps;      ///< steps taken by the vector's block (a converged vector rides along)
 };
 
 /// Rayleigh quotient iteration on every vector of `xs` together (each of size p.size()):

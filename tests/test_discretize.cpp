@@ -290,10 +290,7 @@ TEST_CASE("Legendre's equation through the same assembly and solver: lambda_k = 
 }
 
 TEST_CASE("eigenvectors are M-orthonormal and satisfy K x = lambda M x") {
-  const auto model = test::uniform_sphere(test::uniform_mesh(1999), 5.0 / 3.0);
-  const Structure s(model);
-  const auto f = make_stellar_form(s, SurfaceCondition::regular);
-  const auto p = assemble(f, {all_nodes(f), false, false});
+  const auto p = test::model_pencil(test::uniform_sphere(test::uniform_mesh(1999), 5.0 / 3.0));
   PencilRequest req;
   req.count = 8;
   const auto spec = solve_pencil(p, req);

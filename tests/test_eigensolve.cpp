@@ -379,3 +379,32 @@ TEST_CASE("a 200,000-point model: round-off-limited residuals are not flagged, e
     CHECK(m.error_estimate <= 1e-6 * m.omega2); // statistical, not worst-case, round-off term
   }
 }
+
+TEST_CASE("the nested solve does O(N) work: iteration work per row and mode is the same at every size") {
+  // The operation count of the solve, not its time (a timed test would measure the machine):
+  // every Rayleigh quotient step costs O(rows) per vector, so rows x vectors summed over all
+  // steps on all meshes (PencilSpectrum::iteration_work) divided by N x count must not grow
+  // with N. The meshes halve, so one step per mesh gives about 2 (a geometric series), plus
+  // the extra steps of the two meshes whose eigenvalues are verified.
+  std::vector<double> per_row;
+  for (const std::size_t n : {2000u, 20000u, 200000u}) {
+    GeneratorOptions g;
+    g.points = n;
+    const TridiagonalPencil p = test::model_pencil(make_polytrope(3.0, g));
+    PencilRequest req;
+    req.count = 10;
+    const PencilSpectrum sp = solve_pencil(p, req);
+    REQUIRE(sp.status == SolveStatus::ok);
+    REQUIRE(sp.pairs.size() == 10);
+    for (int k = 0; k < 10; ++k) CHECK(sp.pairs[static_cast<std::size_t>(k)].index == k);
+    per_row.push_back(static_cast<double>(sp.iteration_work) / (static_cast<double>(p.size()) * 10.0));
+    MESSAGE(n << " points: iteration work " << sp.iteration_work << " = " << per_row.back()
+              << " x rows x modes");
+  }
+  for (const double w : per_row) {
+    CHECK(w > 0.5);
+    CHECK(w < 6.0);
+  }
+  CHECK(per_row[2] < 1.5 * per_row[0]);
+  CHECK(per_row[1] < 1.5 * per_row[0]);
+}

@@ -154,6 +154,10 @@ struct PencilSpectrum {
   std::string message;
   int iterations = 0;  ///< Spectra restarts
   int recovered = 0;   ///< pairs Spectra missed, found by inertia bisection + inverse iteration
+  /// Work of the Rayleigh quotient iteration: rows x vectors summed over every step on every
+  /// mesh (each step is an O(rows) factorization and solve per vector). For the nested solve
+  /// of a large pencil it stays a fixed multiple of size x count: the iteration is O(N).
+  std::size_t iteration_work = 0;
   double shift = 0;    ///< shift used for the shift-invert solve
 };
 

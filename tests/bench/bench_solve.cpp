@@ -6,8 +6,10 @@
 //    coarsest of a family of every-other-node meshes, Rayleigh quotient iteration up to the
 //    model mesh, every eigenvalue's index verified by inertia);
 //  - "solve 10": the solve_pencil call alone, on the pencil assembled once;
-//  - a reference with exactly O(N) work (20 inertia counts on that pencil), whose fitted
-//    exponent shows how far the memory hierarchy alone bends O(N) work on this machine;
+//  - two references with exactly O(N) work: 20 inertia counts on that pencil (bound by the
+//    latency of its divisions, like the solver's recurrences) and 20 STREAM triads over arrays
+//    as large as the solver's work arrays (bound by memory traffic): between them, how far
+//    the memory hierarchy bends O(N) work on this machine as the arrays leave the caches;
 //  - "solve_modes": the whole default solve_modes (5 modes, nested iteration, Richardson with
 //    the coarse mesh, interpolation-error estimate) and with 10 modes;
 // median wall-clock milliseconds and median thread CPU milliseconds of the repeats, and the
@@ -80,7 +82,7 @@ double exponent(const std::vector<double>& n, const std::vector<double>& t) {
 int main(int argc, char** argv) {
   const int repeats = argc > 1 ? std::max(1, std::stoi(argv[1])) : 21;
   const std::vector<std::size_t> sizes = {2000, 20000, 200000};
-  std::vector<double> ns, t_solve, t_only, t_modes, t_ref;
+  std::vector<double> ns, t_solve, t_only, t_modes, t_ref, t_stream;
   std::printf("%9s %22s %22s %22s %22s\n", "points", "assemble+solve 10", "solve 10", "solve_modes 5",
               "solve_modes 10");
   std::printf("%9s %22s %22s %22s %22s\n", "", "wall ms / cpu ms", "wall ms / cpu ms", "wall ms / cpu ms",
@@ -111,6 +113,18 @@ int main(int argc, char** argv) {
       for (int k = 0; k < 20; ++k) sink += inertia_below(p0, 1.0 + k);
     });
     t_ref.push_back(r.cpu_ms);
+    // A second reference, O(N) and bound by memory traffic instead: 20 passes of the STREAM
+    // triad a = b + q c (McCalpin's memory-bandwidth benchmark) over three arrays of 5 N
+    // doubles, the size of the work arrays of one block of five vectors in the solver.
+    std::vector<double> ta(5 * n, 0.0), tb(5 * n, 1.0), tc(5 * n, 2.0);
+    const Timing st = time_it(reps, [&] {
+      for (int k = 0; k < 20; ++k) {
+        const double q = 1.0 + 1e-3 * k;
+        for (std::size_t i = 0; i < ta.size(); ++i) ta[i] = tb[i] + q * tc[i];
+        sink += ta[n];
+      }
+    });
+    t_stream.push_back(st.cpu_ms);
     SolveOptions o5, o10;
     o10.count = 10;
     const Timing b = time_it(reps, [&] { sink += solve_modes(model, o5).modes.back().omega2; });
@@ -128,13 +142,18 @@ int main(int argc, char** argv) {
               exponent(ns, t_solve), exponent(ns, t_only), exponent(ns, t_modes));
   std::printf("reference O(N) work (20 inertia counts): %.3f / %.3f / %.3f ms, p = %.2f\n",
               t_ref[0], t_ref[1], t_ref[2], exponent(ns, t_ref));
+  std::printf("reference O(N) memory traffic (20 triads on 3 x 5N doubles): %.3f / %.3f / %.3f ms, "
+              "p = %.2f\n",
+              t_stream[0], t_stream[1], t_stream[2], exponent(ns, t_stream));
   // Exponents between neighbouring sizes: where the time per point starts to grow.
   auto pair = [](const std::vector<double>& t, std::size_t i) {
     return std::log(t[i + 1] / t[i]) / std::log(10.0);
   };
   std::printf("exponent 2,000 -> 20,000 / 20,000 -> 200,000 points: solve 10: %.2f / %.2f, "
-              "solve_modes 5: %.2f / %.2f\n",
-              pair(t_only, 0), pair(t_only, 1), pair(t_modes, 0), pair(t_modes, 1));
+              "solve_modes 5: %.2f / %.2f, inertia reference: %.2f / %.2f, triad reference: "
+              "%.2f / %.2f\n",
+              pair(t_only, 0), pair(t_only, 1), pair(t_modes, 0), pair(t_modes, 1), pair(t_ref, 0),
+              pair(t_ref, 1), pair(t_stream, 0), pair(t_stream, 1));
 
   // Throughput: two threads, default options, 2,000-point models.
   GeneratorOptions g;

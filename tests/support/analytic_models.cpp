@@ -30,4 +30,10 @@ std::vector<double> uniform_mesh(std::size_t n_intervals, double x0) {
   return x;
 }
 
+TridiagonalPencil model_pencil(const StellarModel& model) {
+  const Structure s(model);
+  const WeakForm f = make_stellar_form(s, SurfaceCondition::regular);
+  return assemble(f, {all_nodes(f), false, false});
+}
+
 } // namespace radmode::test

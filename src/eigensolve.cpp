@@ -275,8 +275,11 @@ struct Engine {
       } else {
         set_residual(e);
       }
-      const double norm = 1.0 / std::sqrt(xmx[i]);
-      for (double& v : e.x) v *= norm;
+      // (Rayleigh quotient iteration leaves x^T M x = 1 to round-off: no pass needed then.)
+      if (std::abs(xmx[i] - 1.0) > 8 * eps) {
+        const double norm = 1.0 / std::sqrt(xmx[i]);
+        for (double& v : e.x) v *= norm;
+      }
       if (!std::isfinite(e.lambda)) continue;
       const double margin = count_margin(e.lambda, scale);
       shifts.push_back(e.lambda - margin);

@@ -4,6 +4,8 @@
 
 #include <algorithm>
 #include <cmath>
+#include <cstdint>
+#include <cstring>
 #include <limits>
 #include <type_traits>
 
@@ -124,23 +126,47 @@ struct Workspace {
 };
 thread_local Workspace t_work;
 
-/// B vectors under Rayleigh quotient iteration, held interleaved (x[j * B + b]) in the thread's
-/// workspace from the first step to the last. The stored columns are unnormalized: vector b
-/// is x[. * B + b] * m_scale[b], the scale applied where the vector is used (in the next
-/// step's M x, the residual, the copy out), so that no pass over the mesh is spent on
-/// normalizing. A step is two passes: (1) M x, the LDL^T factorization of K - s M and the
-/// forward substitution together (the Thomas algorithm); (2) the diagonal scaling, the
-/// backward substitution, max |y| and the Rayleigh quotient of y, whose row products are
-/// formed as soon as the backward sweep has passed a row's neighbours. Values carried from
-/// row to row stay in registers, so the passes run at the latency of their recurrences, which
-/// the B independent columns overlap, and the memory traffic per step is a few reads and
-/// writes of each array (this is what bounds the speed once the arrays leave the caches).
+/// Two doubles handled by one instruction: the vector extension of GCC and Clang (SSE2 on
+/// x86-64, NEON on AArch64). Arithmetic is elementwise, a scalar operand applies to both
+/// lanes, and each lane computes exactly what the same expression on doubles computes.
+typedef double Pair __attribute__((vector_size(16)));
+typedef std::uint64_t PairBits __attribute__((vector_size(16)));
+
+Pair load2(const double* p) {
+  Pair v;
+  std::memcpy(&v, p, sizeof v);
+  return v;
+}
+void store2(double* p, Pair v) { std::memcpy(p, &v, sizeof v); }
+Pair abs2(Pair v) {
+  PairBits bits;
+  std::memcpy(&bits, &v, sizeof v);
+  bits &= ~(std::uint64_t{1} << 63);
+  std::memcpy(&v, &bits, sizeof v);
+  return v;
+}
+
+/// B vectors under Rayleigh quotient iteration, held interleaved (x[j * P + b], P = B rounded
+/// up to even; an odd B gets a column of zeros) in the thread's workspace from the first step
+/// to the last, and processed two columns at a time (Pair). The stored columns are
+/// unnormalized: vector b is x[. * P + b] * scale[b], the scale applied where the vector is
+/// used (in the next step's M x, the residual, the copy out), so that no pass over the mesh
+/// is spent on normalizing. A step is two passes: (1) M x, the LDL^T factorization of K - s M
+/// and the forward substitution together (the Thomas algorithm); (2) the diagonal scaling,
+/// the backward substitution and the Rayleigh quotient of y, whose row products are formed as
+/// soon as the backward sweep has passed a row's neighbours. Values carried from row to row
+/// stay in registers, so the passes run at the latency of their recurrences, which the
+/// independent columns overlap, and the memory traffic per step is a few reads and writes of
+/// each array (this is what bounds the speed once the arrays leave the caches).
 template <std::size_t B> class RqiBlock {
+  static constexpr std::size_t P = (B + 1) / 2 * 2; ///< stored columns
+  static constexpr std::size_t H = P / 2;           ///< pairs of columns
+
 public:
   RqiBlock(const TridiagonalPencil& p, double kmax, double mmax)
       : m_p(p), m_n(p.size()), m_kmax(kmax), m_mmax(mmax) {
-    t_work.reserve(m_n * B);
-    for (std::size_t b = 0; b < B; ++b) m_scale[b] = 1.0;
+    t_work.reserve(m_n * P);
+    for (std::size_t h = 0; h < H; ++h) m_scale[h] = Pair{1.0, 1.0};
   }
 
   /// The vectors xs[b] (of the pencil's size, or with `from` of the coarser pencil, then
@@ -148,19 +174,23 @@ public:
   void load(std::vector<double>* const* xs, const Prolongation* from) {
     double* const x = t_work.x.data();
     if (!from) {
-      for (std::size_t j = 0; j < m_n; ++j)
-        for (std::size_t b = 0; b < B; ++b) x[j * B + b] = (*xs[b])[j];
+      for (std::size_t j = 0; j < m_n; ++j) {
+        for (std::size_t b = 0; b < B; ++b) x[j * P + b] = (*xs[b])[j];
+        for (std::size_t b = B; b < P; ++b) x[j * P + b] = 0.0;
+      }
       return;
     }
     const std::size_t coarse_values = from->coarse.size() + 3; // with both ends and the mark
-    if (t_work.y.size() < coarse_values * B) t_work.y.resize(coarse_values * B);
+    if (t_work.y.size() < coarse_values * P) t_work.y.resize(coarse_values * P);
     for_prolongation(*from, m_p, [&](const std::size_t* source) {
       double* c = t_work.y.data(); // the coarse values, interleaved
       for (std::size_t i = 0; source[i] != end_mark; ++i)
-        for (std::size_t b = 0; b < B; ++b) c[i * B + b] = source[i] == zero_mark ? 0.0 : (*xs[b])[source[i]];
+        for (std::size_t b = 0; b < P; ++b)
+          c[i * P + b] = source[i] == zero_mark || b >= B ? 0.0 : (*xs[b])[source[i]];
       return c;
     }, [&](std::size_t j, std::size_t k, double t, const double* c) {
-      for (std::size_t b = 0; b < B; ++b) x[j * B + b] = (1 - t) * c[k * B + b] + t * c[(k + 1) * B + b];
+      for (std::size_t h = 0; h < H; ++h)
+        store2(x + j * P + 2 * h, (1 - t) * load2(c + k * P + 2 * h) + t * load2(c + (k + 1) * P + 2 * h));
     });
   }
 
@@ -176,34 +206,33 @@ public:
       xs[b]->resize(m_n);
       out[k] = xs[b]->data();
       column[k] = b;
-      s[k++] = m_scale[b];
+      s[k++] = scale(b);
     }
     const double* const x = t_work.x.data();
     if (k == B) { // the usual case: every column, a fixed inner loop
       for (std::size_t j = 0; j < m_n; ++j)
-        for (std::size_t b = 0; b < B; ++b) out[b][j] = x[j * B + b] * s[b];
+        for (std::size_t b = 0; b < B; ++b) out[b][j] = x[j * P + b] * s[b];
       return;
     }
     for (std::size_t j = 0; j < m_n; ++j)
-      for (std::size_t c = 0; c < k; ++c) out[c][j] = x[j * B + column[c]] * s[c];
+      for (std::size_t c = 0; c < k; ++c) out[c][j] = x[j * P + column[c]] * s[c];
   }
 
   /// Rayleigh quotients of the vectors, summed as x . (K x): the row sums cancel locally, where
   /// sum K_ij x_i x_j term by term would lose ~1e-9 relative to cancellation on a 2,000-point
   /// mesh.
   void quotients(double* rho) const {
-    double vkv[B] = {}, vmv[B] = {};
-    for_products(t_work.x.data(), [&](std::size_t b, double c, double kv, double mv, double, double) {
-      vkv[b] += c * kv;
-      vmv[b] += c * mv;
+    Pair vkv[H] = {}, vmv[H] = {};
+    for_products(t_work.x.data(), [&](std::size_t h, Pair c, Pair kv, Pair mv, Pair, Pair) {
+      vkv[h] += c * kv;
+      vmv[h] += c * mv;
     });
-    for (std::size_t b = 0; b < B; ++b) rho[b] = vkv[b] / vmv[b];
+    for (std::size_t b = 0; b < B; ++b) rho[b] = vkv[b / 2][b % 2] / vmv[b / 2][b % 2];
   }
 
   /// y = (K - s M)^{-1} M x per column, into the second work array; q[b] its Rayleigh
-  /// quotient, ymy[b] = y^T M y and big[b] = max |y|. The vectors are not changed until
-  /// accept().
-  void step(const double* s, double* q, double* ymy, double* big) {
+  /// quotient and ymy[b] = y^T M y. The vectors are not changed until accept().
+  void step(const double* s, double* q, double* ymy) {
     const std::size_t n = m_n;
     const double* const x = t_work.x.data();
     double* const y = t_work.y.data();
@@ -212,108 +241,121 @@ public:
     const double* const md = m_p.m_diag.data();
     const double* const ko = m_p.k_off.data();
     const double* const mo = m_p.m_off.data();
-    double floor[B], l_prev[B], y_prev[B];
-    for (std::size_t b = 0; b < B; ++b) {
-      floor[b] = (m_kmax + std::abs(s[b]) * m_mmax) * eps * eps;
-      l_prev[b] = 0.0;
-      y_prev[b] = 0.0;
+    Pair shift[H], floor[H], l_prev[H], y_prev[H];
+    for (std::size_t h = 0; h < H; ++h) {
+      for (std::size_t i = 0; i < 2; ++i) {
+        const std::size_t b = 2 * h + i;
+        shift[h][i] = b < B ? s[b] : 0.0;
+        floor[h][i] = (m_kmax + std::abs(shift[h][i]) * m_mmax) * eps * eps;
+      }
+      l_prev[h] = y_prev[h] = Pair{0.0, 0.0};
     }
     // (1) factor + forward substitution (the end rows apart: no tests in the inner loop).
-    static constexpr double zeros[B] = {};
+    static constexpr double zeros[P] = {};
     auto forward = [&](std::size_t j, double kdj, double mdj, double ko_prev, double mo_prev,
                        double koj, double moj, const double* xl, const double* xr) {
-      const double* xc = x + j * B;
-      for (std::size_t b = 0; b < B; ++b) {
-        const double mx = (mdj * xc[b] + mo_prev * xl[b] + moj * xr[b]) * m_scale[b];
-        double d = kdj - s[b] * mdj - l_prev[b] * (ko_prev - s[b] * mo_prev);
-        if (std::abs(d) < floor[b]) d = d < 0 ? -floor[b] : floor[b]; // singular: stay finite
-        const double dinv = 1.0 / d;
-        y_prev[b] = mx - l_prev[b] * y_prev[b];
-        l_prev[b] = (koj - s[b] * moj) * dinv;
-        y[j * B + b] = y_prev[b];
-        dv[j * B + b] = dinv;
+      const double* xc = x + j * P;
+      for (std::size_t h = 0; h < H; ++h) {
+        const Pair mx =
+            (mdj * load2(xc + 2 * h) + mo_prev * load2(xl + 2 * h) + moj * load2(xr + 2 * h)) * m_scale[h];
+        Pair d = kdj - shift[h] * mdj - l_prev[h] * (ko_prev - shift[h] * mo_prev);
+        for (std::size_t i = 0; i < 2; ++i) // singular: stay finite (rare: a branch per lane)
+          if (std::abs(d[i]) < floor[h][i]) d[i] = d[i] < 0 ? -floor[h][i] : floor[h][i];
+        const Pair dinv = 1.0 / d;
+        y_prev[h] = mx - l_prev[h] * y_prev[h];
+        l_prev[h] = (koj - shift[h] * moj) * dinv;
+        store2(y + j * P + 2 * h, y_prev[h]);
+        store2(dv + j * P + 2 * h, dinv);
       }
     };
     {
       const auto [kd0, md0, ko_prev, mo_prev, ko0, mo0] = row(0);
-      forward(0, kd0, md0, ko_prev, mo_prev, ko0, mo0, zeros, n > 1 ? x + B : zeros);
+      forward(0, kd0, md0, ko_prev, mo_prev, ko0, mo0, zeros, n > 1 ? x + P : zeros);
     }
     for (std::size_t j = 1; j + 1 < n; ++j)
-      forward(j, kd[j], md[j], ko[j - 1], mo[j - 1], ko[j], mo[j], x + (j - 1) * B, x + (j + 1) * B);
+      forward(j, kd[j], md[j], ko[j - 1], mo[j - 1], ko[j], mo[j], x + (j - 1) * P, x + (j + 1) * P);
     if (n > 1) {
       const auto [kdl, mdl, ko_prev, mo_prev, kol, mol] = row(n - 1);
-      forward(n - 1, kdl, mdl, ko_prev, mo_prev, kol, mol, x + (n - 2) * B, zeros);
+      forward(n - 1, kdl, mdl, ko_prev, mo_prev, kol, mol, x + (n - 2) * P, zeros);
     }
     // (2) scaling + backward substitution (l_j recomputed from 1/d_j rather than stored),
     // with the quotient of y: once y_j is known, row j + 1 of K y and M y is complete.
-    double y1[B], y2[B], ykv[B], ymv[B]; // y_{j+1}, y_{j+2}, running sums
-    for (std::size_t b = 0; b < B; ++b) {
-      const std::size_t i = (n - 1) * B + b;
-      y1[b] = y[i] * dv[i];
-      y[i] = y1[b];
-      big[b] = std::abs(y1[b]);
-      y2[b] = ykv[b] = ymv[b] = 0.0;
+    Pair y1[H], y2[H], ykv[H], ymv[H]; // y_{j+1}, y_{j+2}, running sums
+    for (std::size_t h = 0; h < H; ++h) {
+      const std::size_t i = (n - 1) * P + 2 * h;
+      y1[h] = load2(y + i) * load2(dv + i);
+      store2(y + i, y1[h]);
+      y2[h] = ykv[h] = ymv[h] = Pair{0.0, 0.0};
     }
     // Row j of the sweep; kd1, md1: diagonal of row j + 1; ko1, mo1: its upper neighbour.
     auto backward = [&](std::size_t j, double koj, double moj, double kd1, double md1, double ko1,
                         double mo1) {
-      for (std::size_t b = 0; b < B; ++b) {
-        const std::size_t i = j * B + b;
-        const double l = (koj - s[b] * moj) * dv[i];
-        const double y0 = y[i] * dv[i] - l * y1[b];
-        y[i] = y0;
-        big[b] = std::max(big[b], std::abs(y0));
-        const double kv = kd1 * y1[b] + koj * y0 + ko1 * y2[b];
-        const double mv = md1 * y1[b] + moj * y0 + mo1 * y2[b];
-        ykv[b] += y1[b] * kv;
-        ymv[b] += y1[b] * mv;
-        y2[b] = y1[b];
-        y1[b] = y0;
+      for (std::size_t h = 0; h < H; ++h) {
+        const std::size_t i = j * P + 2 * h;
+        const Pair dvj = load2(dv + i);
+        const Pair l = (koj - shift[h] * moj) * dvj;
+        const Pair y0 = load2(y + i) * dvj - l * y1[h];
+        store2(y + i, y0);
+        const Pair kv = kd1 * y1[h] + koj * y0 + ko1 * y2[h];
+        const Pair mv = md1 * y1[h] + moj * y0 + mo1 * y2[h];
+        ykv[h] += y1[h] * kv;
+        ymv[h] += y1[h] * mv;
+        y2[h] = y1[h];
+        y1[h] = y0;
       }
     };
     if (n > 1) backward(n - 2, ko[n - 2], mo[n - 2], kd[n - 1], md[n - 1], 0.0, 0.0);
     for (std::size_t j = n - 2; j-- > 0;) backward(j, ko[j], mo[j], kd[j + 1], md[j + 1], ko[j + 1], mo[j + 1]);
     const double ko0 = n > 1 ? ko[0] : 0.0, mo0 = n > 1 ? mo[0] : 0.0;
-    for (std::size_t b = 0; b < B; ++b) { // row 0
-      ykv[b] += y1[b] * (kd[0] * y1[b] + ko0 * y2[b]);
-      ymv[b] += y1[b] * (md[0] * y1[b] + mo0 * y2[b]);
-      q[b] = ykv[b] / ymv[b];
-      ymy[b] = ymv[b];
+    for (std::size_t h = 0; h < H; ++h) { // row 0
+      ykv[h] += y1[h] * (kd[0] * y1[h] + ko0 * y2[h]);
+      ymv[h] += y1[h] * (md[0] * y1[h] + mo0 * y2[h]);
+    }
+    for (std::size_t b = 0; b < B; ++b) {
+      q[b] = ykv[b / 2][b % 2] / ymv[b / 2][b % 2];
+      ymy[b] = ymv[b / 2][b % 2];
     }
   }
 
   /// The vectors become those of the last step, vector b scaled by scale[b].
   void accept(const double* scale) {
     std::swap(t_work.x, t_work.y);
-    for (std::size_t b = 0; b < B; ++b) m_scale[b] = scale[b];
+    for (std::size_t b = 0; b < P; ++b) m_scale[b / 2][b % 2] = b < B ? scale[b] : 0.0;
   }
 
   /// ||K x - rho M x|| / (||K x|| + |rho| ||M x||) per column, the norms, and the residual's
   /// round-off level eps || |K||x| + |rho||M||x| || / (same denominator): res[b] is reported as
   /// 0 when below ten times that level (iterating cannot lower it further).
   void residuals(const double* rho, double* res, RqiStats* stats) const {
-    double r2[B] = {}, k2[B] = {}, m2[B] = {}, a2[B] = {};
-    for_products(t_work.x.data(), [&](std::size_t b, double, double kx, double mx, double ak, double am) {
-      const double e = kx - rho[b] * mx, a = ak + std::abs(rho[b]) * am;
-      r2[b] += e * e;
-      k2[b] += kx * kx;
-      m2[b] += mx * mx;
-      a2[b] += a * a;
+    Pair r2[H] = {}, k2[H] = {}, m2[H] = {}, a2[H] = {}, rh[H], arh[H];
+    for (std::size_t b = 0; b < P; ++b) {
+      rh[b / 2][b % 2] = b < B ? rho[b] : 0.0;
+      arh[b / 2][b % 2] = std::abs(rh[b / 2][b % 2]);
+    }
+    for_products(t_work.x.data(), [&](std::size_t h, Pair, Pair kx, Pair mx, Pair ak, Pair am) {
+      const Pair e = kx - rh[h] * mx, a = ak + arh[h] * am;
+      r2[h] += e * e;
+      k2[h] += kx * kx;
+      m2[h] += mx * mx;
+      a2[h] += a * a;
     });
     for (std::size_t b = 0; b < B; ++b) {
-      const double denom = std::sqrt(k2[b]) + std::abs(rho[b]) * std::sqrt(m2[b]);
-      const double floor = denom > 0 ? eps * std::sqrt(a2[b]) / denom : 0.0;
-      res[b] = denom > 0 ? std::sqrt(r2[b]) / denom : 0.0;
+      const std::size_t h = b / 2, i = b % 2;
+      const double denom = std::sqrt(k2[h][i]) + std::abs(rho[b]) * std::sqrt(m2[h][i]);
+      const double floor = denom > 0 ? eps * std::sqrt(a2[h][i]) / denom : 0.0;
+      res[b] = denom > 0 ? std::sqrt(r2[h][i]) / denom : 0.0;
       if (res[b] <= 10 * floor) res[b] = 0.0;
-      const double s = m_scale[b]; // the norms of the scaled vector
-      stats[b].r_norm = std::sqrt(r2[b]) * s;
-      stats[b].kx_norm = std::sqrt(k2[b]) * s;
-      stats[b].mx_norm = std::sqrt(m2[b]) * s;
-      stats[b].a_norm = std::sqrt(a2[b]) * s;
+      const double s = scale(b); // the norms of the scaled vector
+      stats[b].r_norm = std::sqrt(r2[h][i]) * s;
+      stats[b].kx_norm = std::sqrt(k2[h][i]) * s;
+      stats[b].mx_norm = std::sqrt(m2[h][i]) * s;
+      stats[b].a_norm = std::sqrt(a2[h][i]) * s;
     }
   }
 
 private:
+  double scale(std::size_t b) const { return m_scale[b / 2][b % 2]; }
+
   /// Row j of the pencil: K_jj, M_jj, K_j,j-1, M_j,j-1, K_j,j+1, M_j,j+1 (0 beyond the ends).
   struct Row {
     double kd, md, ko_prev, mo_prev, ko, mo;
@@ -324,41 +366,41 @@ private:
             first ? 0.0 : m_p.m_off[j - 1], last ? 0.0 : m_p.k_off[j], last ? 0.0 : m_p.m_off[j]};
   }
 
-  /// Calls f(b, v_jb, (K v)_jb, (M v)_jb, (|K||v|)_jb, (|M||v|)_jb) for every row j and column
-  /// b of the interleaved v (the end rows apart, so that the inner loop has no tests).
+  /// Calls f(h, v, K v, M v, |K||v|, |M||v|) for every row j and pair h of columns of the
+  /// interleaved v (the end rows apart, so that the inner loop has no tests).
   template <class F> void for_products(const double* v, F&& f) const {
     const std::size_t n = m_n;
-    static constexpr double zeros[B] = {};
-    auto rows = [&](std::size_t j, const double* l, const double* r) {
-      const auto [kd, md, ko_prev, mo_prev, ko, mo] = row(j);
-      const double* c = v + j * B;
-      for (std::size_t b = 0; b < B; ++b)
-        f(b, c[b], kd * c[b] + ko_prev * l[b] + ko * r[b], md * c[b] + mo_prev * l[b] + mo * r[b],
-          std::abs(kd * c[b]) + std::abs(ko_prev * l[b]) + std::abs(ko * r[b]),
-          std::abs(md * c[b]) + std::abs(mo_prev * l[b]) + std::abs(mo * r[b]));
+    static constexpr double zeros[P] = {};
+    auto one_row = [&](std::size_t j, double kdj, double mdj, double ko_prev, double mo_prev,
+                       double koj, double moj, const double* l, const double* r) {
+      const double* c = v + j * P;
+      for (std::size_t h = 0; h < H; ++h) {
+        const Pair cv = load2(c + 2 * h), lv = load2(l + 2 * h), rv = load2(r + 2 * h);
+        f(h, cv, kdj * cv + ko_prev * lv + koj * rv, mdj * cv + mo_prev * lv + moj * rv,
+          abs2(kdj * cv) + abs2(ko_prev * lv) + abs2(koj * rv),
+          abs2(mdj * cv) + abs2(mo_prev * lv) + abs2(moj * rv));
+      }
     };
-    rows(0, zeros, n > 1 ? v + B : zeros);
+    {
+      const auto [kd0, md0, ko_prev, mo_prev, ko0, mo0] = row(0);
+      one_row(0, kd0, md0, ko_prev, mo_prev, ko0, mo0, zeros, n > 1 ? v + P : zeros);
+    }
     const double* const kd = m_p.k_diag.data();
     const double* const md = m_p.m_diag.data();
     const double* const ko = m_p.k_off.data();
     const double* const mo = m_p.m_off.data();
-    for (std::size_t j = 1; j + 1 < n; ++j) {
-      const double* l = v + (j - 1) * B;
-      const double* c = l + B;
-      const double* r = c + B;
-      for (std::size_t b = 0; b < B; ++b)
-        f(b, c[b], kd[j] * c[b] + ko[j - 1] * l[b] + ko[j] * r[b],
-          md[j] * c[b] + mo[j - 1] * l[b] + mo[j] * r[b],
-          std::abs(kd[j] * c[b]) + std::abs(ko[j - 1] * l[b]) + std::abs(ko[j] * r[b]),
-          std::abs(md[j] * c[b]) + std::abs(mo[j - 1] * l[b]) + std::abs(mo[j] * r[b]));
+    for (std::size_t j = 1; j + 1 < n; ++j)
+      one_row(j, kd[j], md[j], ko[j - 1], mo[j - 1], ko[j], mo[j], v + (j - 1) * P, v + (j + 1) * P);
+    if (n > 1) {
+      const auto [kdl, mdl, ko_prev, mo_prev, kol, mol] = row(n - 1);
+      one_row(n - 1, kdl, mdl, ko_prev, mo_prev, kol, mol, v + (n - 2) * P, zeros);
     }
-    if (n > 1) rows(n - 1, v + (n - 2) * B, zeros);
   }
 
   const TridiagonalPencil& m_p;
   std::size_t m_n;
   double m_kmax, m_mmax;
-  double m_scale[B];
+  Pair m_scale[H];
 };
 
 /// rayleigh_iterate for one block of B vectors (see pencil_block.hpp for the rules).
@@ -395,22 +437,22 @@ void iterate_block(const TridiagonalPencil& p, std::vector<double>* const* xs, c
     }
     block.store(done, xs); // the vectors that have converged
     if (!any) return;
-    double shift[B], q[B], ymy[B], big[B], next_scale[B];
+    double shift[B], q[B], ymy[B], next_scale[B];
     for (std::size_t b = 0; b < B; ++b) {
       shift[b] = it == 0 && !std::isnan(first_shift[b]) ? first_shift[b] : rho[b];
       if (!std::isfinite(shift[b])) shift[b] = 0.0;
     }
-    block.step(shift, q, ymy, big);
+    block.step(shift, q, ymy);
     bool failed[B] = {};
     for (std::size_t b = 0; b < B; ++b) {
       next_scale[b] = 0.0; // columns no longer followed: anything finite
       if (!active[b]) continue;
-      if (!(big[b] > 0 && std::isfinite(big[b]) && std::isfinite(q[b]))) {
+      if (!(ymy[b] > 0 && std::isfinite(ymy[b]) && std::isfinite(q[b]))) {
         failed[b] = true; // zero or non-finite: keep the last good vector
         active[b] = false;
         continue;
       }
-      next_scale[b] = 1.0 / big[b];
+      next_scale[b] = 1.0 / std::sqrt(ymy[b]); // x^T M x = 1
       rho[b] = q[b];
       stats[b] = {q[b], ymy[b] * next_scale[b] * next_scale[b], nan, nan, nan, nan, 0};
     }

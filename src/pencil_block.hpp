@@ -32,7 +32,7 @@ struct RqiStats {
 };
 
 /// Rayleigh quotient iteration on every vector of `xs` together (each of size p.size()):
-/// x <- (K - rho(x) M)^{-1} M x, scaled to max |x| = 1, at most `max_steps` steps. A vector
+/// x <- (K - rho(x) M)^{-1} M x, scaled to x^T M x = 1, at most `max_steps` steps. A vector
 /// stops once, after at least `min_steps` steps, its quotient changes by no more than
 /// 1e-14 |rho| + 4 eps `scale` between steps (scale: magnitude of the spectrum), or (when
 /// residual_tol > 0) after any step whose residual ||K x - rho M x|| / (||K x|| + |rho| ||M x||)

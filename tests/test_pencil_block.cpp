@@ -95,9 +95,15 @@ TEST_CASE("Rayleigh quotient iteration reaches the closed-form eigenpairs from r
     const auto& x = xs[static_cast<std::size_t>(k)];
     // (round-off of the quotient: ~eps lambda_max/lambda_0 ~ 1e-11 for the fundamental)
     CHECK(quotient(d.pencil, x) == doctest::Approx(d.exact(k)).epsilon(1e-10));
-    double big = 0;
-    for (const double v : x) big = std::max(big, std::abs(v));
-    CHECK(big == doctest::Approx(1.0)); // scaled to max |x| = 1
+    // scaled to x^T M x = 1
+    double xmx = 0;
+    for (std::size_t j = 0; j < m; ++j) {
+      double mx = d.pencil.m_diag[j] * x[j];
+      if (j > 0) mx += d.pencil.m_off[j - 1] * x[j - 1];
+      if (j + 1 < m) mx += d.pencil.m_off[j] * x[j + 1];
+      xmx += x[j] * mx;
+    }
+    CHECK(xmx == doctest::Approx(1.0).epsilon(1e-12));
   }
 }
 

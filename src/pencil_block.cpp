@@ -241,7 +241,7 @@ public:
     const double* const md = m_p.m_diag.data();
     const double* const ko = m_p.k_off.data();
     const double* const mo = m_p.m_off.data();
-    Pair shift[H], floor[H], l_prev[H], y_prev[H];
+    Pair shift[H] = {}, floor[H] = {}, l_prev[H], y_prev[H];
     for (std::size_t h = 0; h < H; ++h) {
       for (std::size_t i = 0; i < 2; ++i) {
         const std::size_t b = 2 * h + i;
@@ -327,7 +327,7 @@ public:
   /// round-off level eps || |K||x| + |rho||M||x| || / (same denominator): res[b] is reported as
   /// 0 when below ten times that level (iterating cannot lower it further).
   void residuals(const double* rho, double* res, RqiStats* stats) const {
-    Pair r2[H] = {}, k2[H] = {}, m2[H] = {}, a2[H] = {}, rh[H], arh[H];
+    Pair r2[H] = {}, k2[H] = {}, m2[H] = {}, a2[H] = {}, rh[H] = {}, arh[H] = {};
     for (std::size_t b = 0; b < P; ++b) {
       rh[b / 2][b % 2] = b < B ? rho[b] : 0.0;
       arh[b / 2][b % 2] = std::abs(rh[b / 2][b % 2]);

@@ -7,6 +7,7 @@
 #include <algorithm>
 #include <cmath>
 #include <limits>
+#include <memory>
 
 namespace radmode {
 
@@ -34,16 +35,19 @@ double derivative3(double x0, double x1, double x2, double y0, double y1, double
   return (h1 * h1 * (y2 - y1) + h2 * h2 * (y1 - y0)) / (h1 * h2 * (h1 + h2));
 }
 
-/// Index of the nearest point before i whose x differs from x[i] (or npos).
+/// Index of the nearest point before i whose x(j) differs from x(i) (or npos); x(j) is the
+/// stencil coordinate of point j, n the number of points.
 constexpr std::size_t npos = static_cast<std::size_t>(-1);
-std::size_t distinct_before(const std::vector<double>& x, std::size_t i) {
+template <class X> std::size_t distinct_before(X x, std::size_t i) {
+  const double xi = x(i);
   for (std::size_t j = i; j-- > 0;)
-    if (x[j] != x[i]) return j;
+    if (x(j) != xi) return j;
   return npos;
 }
-std::size_t distinct_after(const std::vector<double>& x, std::size_t i) {
-  for (std::size_t j = i + 1; j < x.size(); ++j)
-    if (x[j] != x[i]) return j;
+template <class X> std::size_t distinct_after(X x, std::size_t n, std::size_t i) {
+  const double xi = x(i);
+  for (std::size_t j = i + 1; j < n; ++j)
+    if (x(j) != xi) return j;
   return npos;
 }
 
@@ -97,57 +101,21 @@ std::size_t widen(std::size_t start, std::size_t limit, TooClose too_close, bool
 /// digits (near the centre of a finely meshed model P hardly changes between points; in the
 /// envelope m does not); `monotone` as in widen. NaN when there is no such stencil or
 /// `resolved(a, b)` says the stencil cannot resolve the profile.
-template <class TooClose, class Resolved>
-double residual_form(const std::vector<double>& x, const std::vector<double>& y, std::size_t i,
-                     double target, TooClose too_close, bool monotone, Resolved resolved) {
-  std::size_t a = distinct_before(x, i), b = distinct_after(x, i);
+template <class X, class TooClose, class Resolved>
+double residual_form(X x, const std::vector<double>& y, std::size_t i, double target,
+                     TooClose too_close, bool monotone, Resolved resolved) {
+  const std::size_t n = y.size();
+  std::size_t a = distinct_before(x, i), b = distinct_after(x, n, i);
   if (a == npos || b == npos || !(target < 0.0)) return std::numeric_limits<double>::quiet_NaN();
   bool a_close = false, b_close = false;
   a = widen<true>(a, 0, too_close, monotone, a_close);
   if (a_close) return std::numeric_limits<double>::quiet_NaN();
-  b = widen<false>(b, y.size() - 1, too_close, monotone, b_close);
-  if (b_close || x[a] == x[i] || x[b] == x[i] || !resolved(a, b))
-    return std::numeric_limits<double>::quiet_NaN();
-  const double d = derivative3(x[a], x[i], x[b], y[a], y[i], y[b]);
+  b = widen<false>(b, n - 1, too_close, monotone, b_close);
+  if (b_close) return std::numeric_limits<double>::quiet_NaN();
+  const double xa = x(a), xi = x(i), xb = x(b);
+  if (xa == xi || xb == xi || !resolved(a, b)) return std::numeric_limits<double>::quiet_NaN();
+  const double d = derivative3(xa, xi, xb, y[a], y[i], y[b]);
   return std::abs(d - target) / std::abs(target);
-}
-
-/// b G^2 M^3 / R^2 [g cm^4 s^-4] of physics.md section 5, for two choices of the specific
-/// internal energy u [erg g^-1] at each point (ua, ub) in one pass; trapezoid in m on the m
-/// column. Per point, computed once: gm_r = G m / r, g_r = G / r (both 0 at r = 0) and
-/// p_rho = P / rho.
-struct PnIntegrals {
-  double a = 0, b = 0;
-};
-PnIntegrals pn_integrals(const StellarModel& model, const std::vector<double>& ua,
-                         const std::vector<double>& ub, const std::vector<double>& gm_r,
-                         const std::vector<double>& g_r, const std::vector<double>& p_rho) {
-  const std::size_t n = model.size();
-  double Ua = 0, Ub = 0, Omega = 0;
-  double prev_fa = 0, prev_fb = 0;
-  PnIntegrals total;
-  for (std::size_t i = 0; i < n; ++i) {
-    double dm = 0;
-    if (i > 0) {
-      dm = model.m[i] - model.m[i - 1];
-      Ua += 0.5 * (ua[i] + ua[i - 1]) * dm;
-      Ub += 0.5 * (ub[i] + ub[i - 1]) * dm;
-      Omega += 0.5 * (gm_r[i] + gm_r[i - 1]) * dm;
-    }
-    const double gr = gm_r[i];
-    const bool inside = model.r[i] > 0.0;
-    const double fa =
-        (inside ? g_r[i] * (Ua - Omega) : 0.0) + 0.5 * gr * gr + gr * (ua[i] + p_rho[i]);
-    const double fb =
-        (inside ? g_r[i] * (Ub - Omega) : 0.0) + 0.5 * gr * gr + gr * (ub[i] + p_rho[i]);
-    if (i > 0) {
-      total.a += 0.5 * (fa + prev_fa) * dm;
-      total.b += 0.5 * (fb + prev_fb) * dm;
-    }
-    prev_fa = fa;
-    prev_fb = fb;
-  }
-  return total;
 }
 
 void warn(ModelDiagnostics& d, std::string code, std::string message) {
@@ -210,6 +178,142 @@ void find_gamma1_zones(const StellarModel& model, ModelDiagnostics& d) {
   }
 }
 
+
+/// The hydrostatic-equilibrium residual of diagnostics.hpp over the interior points, into
+/// d.hse_*; the same result, bit for bit, as evaluating both forms at every point. `by_r` and
+/// `s` are scratch for n doubles each. Arrangement:
+///  1. The radius form at every point with the nearest neighbours as its stencil, in one loop
+///     without branches; points whose stencil must widen (a repeated radius or P unresolved
+///     next to the point) are marked and redone by the stencil search (residual_form).
+///  2. The mass form needs s = m^(2/3) (a cube root, the costliest operation per point) and a
+///     stencil search of its own. The residual of a point is the smaller of the two forms and
+///     only the largest residual (its first point) is reported, so the mass form is evaluated
+///     only where it can matter: where the radius form is unusable, or where the radius form
+///     is neither below a residual known to be reached (the full residual at the point where
+///     the radius form is largest) nor below the largest residual so far. Elsewhere the point
+///     counts as checked and cannot hold the maximum. Cube roots are taken on demand, once.
+void hse_residual(const StellarModel& model, double p_floor, bool p_monotone, bool m_monotone,
+                  double* by_r, double* s, ModelDiagnostics& d) {
+  const double* const r = model.r.data();
+  const double* const m = model.m.data();
+  const double* const P = model.P.data();
+  const double* const rho = model.rho.data();
+  const std::size_t n = model.size();
+  const double eps = hse_min_relative_change;
+  const double nan = std::numeric_limits<double>::quiet_NaN();
+  constexpr double widen_marker = -1.0; // not a residual (those are >= 0 or NaN)
+
+  // Exact dP/dr = -G m rho / r^2 at point i (used where r > 0).
+  auto radius_target = [&](std::size_t i) { return -(G * m[i] * rho[i] / (r[i] * r[i])); };
+  // Radius form only where P changes by less than a factor 2 across the stencil (next to a
+  // power-law zero of P the three-point difference has an O(1) error).
+  auto p_resolved = [&](std::size_t a, std::size_t b) {
+    return std::min(P[a], P[b]) >= 0.5 * std::max(P[a], P[b]);
+  };
+  // (two loops: with a division inside a conditional expression the compiler branches
+  // around it and the loop no longer vectorizes; bitwise & makes every comparison)
+  double* const target_r = s; // s is filled later
+  for (std::size_t i = 1; i + 1 < n; ++i) {
+    const double target = radius_target(i);
+    const double slope = derivative3(r[i - 1], r[i], r[i + 1], P[i - 1], P[i], P[i + 1]);
+    by_r[i] = std::abs(slope - target) / std::abs(target);
+    target_r[i] = target;
+  }
+  for (std::size_t i = 1; i + 1 < n; ++i) {
+    const double before = P[i - 1], after = P[i + 1];
+    const double lower = after < before ? after : before; // std::min, std::max
+    const double higher = before < after ? after : before;
+    const bool nearest = (r[i - 1] != r[i]) & (r[i + 1] != r[i]) &
+                         !(std::abs(before - P[i]) < eps * P[i]) &
+                         !(std::abs(after - P[i]) < eps * P[i]);
+    const bool usable = (target_r[i] < 0.0) & (lower >= 0.5 * higher); // as p_resolved
+    const double value = usable ? by_r[i] : nan;
+    by_r[i] = nearest ? value : widen_marker;
+  }
+  auto radius_form = [&](std::size_t i) {
+    return residual_form(
+        [&](std::size_t j) { return r[j]; }, model.P, i, radius_target(i),
+        [&](std::size_t j) { return std::abs(P[j] - P[i]) < eps * P[i]; }, p_monotone,
+        p_resolved);
+  };
+
+  // Mass form: dP/ds = -3 G m^(4/3) / (8 pi r^4), m^(4/3) = s^2 and r^4 = (r^2)^2; the mass
+  // differences must be resolved as well.
+  std::fill(s, s + n, -1.0);
+  auto s_at = [&](std::size_t j) {
+    if (s[j] < 0.0) s[j] = std::cbrt(m[j] * m[j]);
+    return s[j];
+  };
+  auto mass_form = [&](std::size_t i) {
+    const double si = s_at(i), r2 = r[i] * r[i];
+    const double target = -3.0 * G * (si * si) / (8.0 * pi * (r2 * r2));
+    return residual_form(
+        s_at, model.P, i, target,
+        [&](std::size_t j) {
+          return std::abs(P[j] - P[i]) < eps * P[i] || std::abs(m[j] - m[i]) < eps * m[i];
+        },
+        p_monotone && m_monotone, [](std::size_t, std::size_t) { return true; });
+  };
+  // The residual kept at a point: the smaller usable form (NaN when neither is usable).
+  auto smaller = [](double by_radius, double by_mass) {
+    if (std::isnan(by_radius)) return by_mass;
+    if (std::isnan(by_mass)) return by_radius;
+    return std::min(by_radius, by_mass);
+  };
+  auto skipped = [&](std::size_t i) { return !(r[i] > 0.0) || !(m[i] > 0.0) || P[i] < p_floor; };
+
+  // Widened radius-form stencils, and the point where the radius form is largest.
+  std::size_t top = npos;
+  double top_value = -1.0;
+  for (std::size_t i = 1; i + 1 < n; ++i) {
+    if (skipped(i)) continue;
+    if (by_r[i] == widen_marker) by_r[i] = radius_form(i);
+    if (by_r[i] > top_value) {
+      top_value = by_r[i];
+      top = i;
+    }
+  }
+  double reached = -1.0; // a residual that some checked point has
+  double top_mass = nan;
+  if (top != npos) {
+    top_mass = mass_form(top);
+    reached = smaller(by_r[top], top_mass);
+  }
+
+  double worst = -1;
+  std::size_t worst_index = 0, checked = 0, not_checked = 0;
+  for (std::size_t i = 1; i + 1 < n; ++i) {
+    if (skipped(i)) {
+      ++not_checked;
+      continue;
+    }
+    const double by_radius = by_r[i];
+    if (!std::isnan(by_radius) && (by_radius < reached || by_radius <= worst)) {
+      ++checked; // its residual is at most by_radius: not the largest
+      continue;
+    }
+    const double res = smaller(by_radius, i == top ? top_mass : mass_form(i));
+    if (std::isnan(res)) {
+      ++not_checked;
+      continue;
+    }
+    ++checked;
+    if (res > worst) {
+      worst = res;
+      worst_index = i;
+    }
+  }
+  d.hse_points_checked = checked;
+  d.hse_points_skipped = not_checked;
+  d.hse_worst_index = worst_index;
+  if (d.hse_points_checked > 0) {
+    d.hse_residual_max = worst;
+    d.hse_worst_r_cm = r[d.hse_worst_index];
+    d.hse_worst_m_g = m[d.hse_worst_index];
+    d.hse_worst_line = d.hse_worst_index < model.line.size() ? model.line[d.hse_worst_index] : 0;
+  }
+}
+
 } // namespace
 
 void DiagnosticsOptions::validate() const {
@@ -233,11 +337,11 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
     throw Error(ErrorKind::numerical, "diagnostics need a validated model with at least 3 points");
 
   ModelDiagnostics d;
-  const auto& r = model.r;
-  const auto& m = model.m;
-  const auto& P = model.P;
-  const auto& rho = model.rho;
-  const auto& g1 = model.gamma1;
+  const double* const r = model.r.data();
+  const double* const m = model.m.data();
+  const double* const P = model.P.data();
+  const double* const rho = model.rho.data();
+  const double* const g1 = model.gamma1.data();
   const double M = model.mass(), R = model.radius();
   if (!(M > 0.0) || !(R > 0.0))
     throw Error(ErrorKind::numerical, model.source + ": total mass and radius must be > 0");
@@ -251,64 +355,128 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
   d.has_centre = model.has_centre();
   d.surface_pressure = model.surface_pressure();
 
-  // Per-point quantities, each in a loop of its own without branches, so that the compiler
-  // can vectorize the divisions; every value is the same expression as before, bit for bit.
+  // Per-point quantities in loops without branches, so that the compiler can vectorize the
+  // divisions and square roots; the sums follow in one pass, each in table order as before.
   // P / rho [erg g^-1] is taken as 0 at a zero-pressure surface point where rho = 0 too (the
-  // limit for a polytrope, where P/rho is proportional to theta).
-  std::vector<double> p_rho(n), c_s(n), work(n);
+  // limit for a polytrope, where P/rho is proportional to theta). G/r and G m/r are 0 at r = 0.
+  // One block of scratch for all of them (uninitialized: every entry used is written first).
+  const bool has_u = model.u.size() == n;
+  std::unique_ptr<double[]> scratch(new double[11 * n]);
+  double* const p_rho = scratch.get();
+  double* const c_s = p_rho + n;    // sound speed [cm s^-1]
+  double* const cell = c_s + n;     // 2 dr / (c_i-1 + c_i) of cell i [s]; later HSE scratch
+  double* const gm_r = cell + n;    // G m / r [erg g^-1]
+  double* const g_r = gm_r + n;     // G / r [cm^2 s^-2 g^-1]
+  double* const u_ratio = g_r + n;  // P / ((Gamma1 - 1) rho) [erg g^-1]; later HSE scratch
+  double* const integrands = u_ratio + n; // 5 n: the integrands of the integrals in r
+  // (the replacements in loops of their own: with a division inside a conditional
+  // expression the compiler branches around it and the loop no longer vectorizes)
+  // (few arrays per loop: each pair of input and output needs a run-time overlap test)
+  for (std::size_t i = 0; i < n; ++i) p_rho[i] = P[i] / rho[i]; // 0/0: replaced below
   for (std::size_t i = 0; i < n; ++i) {
-    const double q = P[i] / rho[i]; // 0/0 at such a surface point: replaced by 0
-    p_rho[i] = P[i] == 0.0 ? 0.0 : q;
+    g_r[i] = G / r[i];
+    gm_r[i] = G * m[i] / r[i];
   }
+  for (std::size_t i = 0; i < n; ++i) {
+    p_rho[i] = P[i] == 0.0 ? 0.0 : p_rho[i];
+    g_r[i] = r[i] > 0.0 ? g_r[i] : 0.0;
+    gm_r[i] = r[i] > 0.0 ? gm_r[i] : 0.0;
+  }
+  // (a loop of its own: std::sqrt may set errno, which keeps a loop from vectorizing)
   for (std::size_t i = 0; i < n; ++i) c_s[i] = std::sqrt(g1[i] * p_rho[i]);
+  for (std::size_t i = 1; i < n; ++i) cell[i] = 2.0 * (r[i] - r[i - 1]) / (c_s[i - 1] + c_s[i]);
+  if (!has_u)
+    for (std::size_t i = 0; i < n; ++i) u_ratio[i] = p_rho[i] / (g1[i] - 1.0);
+  const double* const u_model = has_u ? model.u.data() : u_ratio;
 
   // Time scales.
   d.t_dyn_s = 1.0 / std::sqrt(G * d.mean_density_g_cm3);
   d.t_kepler_s = std::sqrt(R * R * R / (G * M));
   d.t_freefall_s = std::sqrt(3.0 * pi / (32.0 * G * d.mean_density_g_cm3));
-  {
-    std::vector<double>& cell = work; // 2 dr / (c_i-1 + c_i) of cell i
-    for (std::size_t i = 1; i < n; ++i) cell[i] = 2.0 * (r[i] - r[i - 1]) / (c_s[i - 1] + c_s[i]);
-    double t = 0;
-    for (std::size_t i = 1; i < n; ++i) {
-      if (r[i] - r[i - 1] == 0.0) continue;
-      if (c_s[i - 1] + c_s[i] == 0.0) {
-        t = std::numeric_limits<double>::infinity();
-        break;
-      }
-      t += cell[i];
-    }
-    d.t_sound_s = t;
-  }
 
-  // One pass for the extremes and the monotonicity of P and m.
+  // The sums (trapezoid rules, each in table order) and the extremes, in three passes with
+  // few running values each (with many, they no longer fit the registers and every addition
+  // waits for a store and a load):
+  //  1. sound-crossing time (cells of zero width skipped; infinite when c_s vanishes on both
+  //     ends of a cell); minimum Gamma1 (its first point, as std::min_element), max P,
+  //     Gamma1 > 1 everywhere, and whether P is non-increasing and m non-decreasing along the
+  //     table (then "not resolved" in the HSE check holds on a contiguous run next to each
+  //     point);
+  //  2. integrals in r: mass, pressure moments, inertia of xi = const (integrands per point
+  //     first, in a loop that vectorizes);
+  //  3. post-Newtonian integrals in m (physics.md section 5), b G^2 M^3 / R^2 [g cm^4 s^-4]
+  //     for u = 3 P / rho (b_rad) and the model's u (b_model): U(r) = int u dm,
+  //     Omega(r) = int G m / r dm (whose total is |W|).
+  double t_sound = 0;
+  bool sound_infinite = false;
   std::size_t g1_min_index = 0;
-  double p_max = P[0];
-  bool g1_above_1 = true;
-  // With P non-increasing and m non-decreasing along the table, "not resolved" in the HSE
-  // check holds on a contiguous run next to each point (stencil ends found by bisection).
+  double g1_min = g1[0], p_max = P[0];
+  bool g1_above_1 = g1[0] > 1.0;
   bool p_monotone = true, m_monotone = true;
-  for (std::size_t i = 0; i < n; ++i) {
-    if (g1[i] < g1[g1_min_index]) g1_min_index = i; // the first minimum, as std::min_element
-    if (P[i] > p_max) p_max = P[i];
-    g1_above_1 = g1_above_1 && g1[i] > 1.0;
-    if (i > 0) {
-      p_monotone = p_monotone && P[i] <= P[i - 1];
-      m_monotone = m_monotone && m[i] >= m[i - 1];
+  for (std::size_t i = 1; i < n; ++i) {
+    if (r[i] - r[i - 1] != 0.0) {
+      if (c_s[i - 1] + c_s[i] == 0.0)
+        sound_infinite = true;
+      else
+        t_sound += cell[i];
+    }
+    // (bitwise &: no branches for the flags)
+    g1_min_index = g1[i] < g1_min ? i : g1_min_index;
+    g1_min = g1[i] < g1_min ? g1[i] : g1_min;
+    p_max = P[i] > p_max ? P[i] : p_max;
+    g1_above_1 = g1_above_1 & (g1[i] > 1.0);
+    p_monotone = p_monotone & (P[i] <= P[i - 1]);
+    m_monotone = m_monotone & (m[i] >= m[i - 1]);
+  }
+
+  double mass_int = 0, p_int = 0, g1p_int = 0, excess_int = 0, inertia_int = 0;
+  {
+    double* const f_mass = integrands;
+    double* const f_p = f_mass + n;
+    double* const f_g1p = f_p + n;
+    double* const f_excess = f_g1p + n;
+    double* const f_inertia = f_excess + n;
+    for (std::size_t k = 0; k < n; ++k) {
+      f_mass[k] = 4.0 * pi * r[k] * r[k] * rho[k];
+      f_p[k] = P[k] * r[k] * r[k];
+    }
+    for (std::size_t k = 0; k < n; ++k) {
+      f_g1p[k] = g1[k] * P[k] * r[k] * r[k];
+      f_excess[k] = (g1[k] - four_thirds) * P[k] * r[k] * r[k];
+    }
+    for (std::size_t k = 0; k < n; ++k) f_inertia[k] = rho[k] * r[k] * r[k] * r[k] * r[k];
+    for (std::size_t i = 1; i < n; ++i) {
+      const double dr = r[i] - r[i - 1];
+      auto trap = [&](const double* f) { return 0.5 * dr * (f[i - 1] + f[i]); };
+      mass_int += trap(f_mass);
+      p_int += trap(f_p);
+      g1p_int += trap(f_g1p);
+      excess_int += trap(f_excess);
+      inertia_int += trap(f_inertia);
     }
   }
 
-  // Integrals in r (trapezoid): mass, pressure moments, inertia of xi = const.
-  double mass_int = 0, p_int = 0, g1p_int = 0, excess_int = 0, inertia_int = 0;
+  double U_rad = 0, U_model = 0, Omega = 0, b_rad = 0, b_model = 0;
+  // The integrand of b at point i for internal energy u and its integral U up to i.
+  auto pn_integrand = [&](std::size_t i, double u, double U) {
+    const double gr = gm_r[i];
+    return (r[i] > 0.0 ? g_r[i] * (U - Omega) : 0.0) + 0.5 * gr * gr + gr * (u + p_rho[i]);
+  };
+  double f_rad = pn_integrand(0, 3.0 * p_rho[0], 0.0);
+  double f_model = pn_integrand(0, u_model[0], 0.0);
   for (std::size_t i = 1; i < n; ++i) {
-    const double dr = r[i] - r[i - 1];
-    auto trap = [&](auto f) { return 0.5 * dr * (f(i - 1) + f(i)); };
-    mass_int += trap([&](std::size_t k) { return 4.0 * pi * r[k] * r[k] * rho[k]; });
-    p_int += trap([&](std::size_t k) { return P[k] * r[k] * r[k]; });
-    g1p_int += trap([&](std::size_t k) { return g1[k] * P[k] * r[k] * r[k]; });
-    excess_int += trap([&](std::size_t k) { return (g1[k] - four_thirds) * P[k] * r[k] * r[k]; });
-    inertia_int += trap([&](std::size_t k) { return rho[k] * r[k] * r[k] * r[k] * r[k]; });
+    const double dm = m[i] - m[i - 1];
+    const double u_rad = 3.0 * p_rho[i];
+    U_rad += 0.5 * (u_rad + 3.0 * p_rho[i - 1]) * dm;
+    U_model += 0.5 * (u_model[i] + u_model[i - 1]) * dm;
+    Omega += 0.5 * (gm_r[i] + gm_r[i - 1]) * dm;
+    const double fa = pn_integrand(i, u_rad, U_rad), fb = pn_integrand(i, u_model[i], U_model);
+    b_rad += 0.5 * (fa + f_rad) * dm;
+    b_model += 0.5 * (fb + f_model) * dm;
+    f_rad = fa;
+    f_model = fb;
   }
+  d.t_sound_s = sound_infinite ? std::numeric_limits<double>::infinity() : t_sound;
   if (!(p_int > 0.0))
     throw Error(ErrorKind::numerical,
                 model.source + ": the pressure integral is zero; Gamma1 averages are undefined");
@@ -326,98 +494,28 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
   d.omega2_homologous = 9.0 * excess_int / inertia;
   d.sigma2_homologous = d.omega2_homologous * R * R * R / (G * M);
 
-  // Hydrostatic equilibrium residual.
-  {
-    std::vector<double> s(n); // m^(2/3), the mass-form coordinate
-    for (std::size_t i = 0; i < n; ++i) s[i] = std::cbrt(m[i] * m[i]);
-    // Exact dP/dr = -G m rho / r^2 and dP/ds = -3 G m^(4/3) / (8 pi r^4) per point (used where
-    // r > 0); m^(4/3) = s^2 and r^4 = (r^2)^2, within a few units of round-off of the powers.
-    std::vector<double>& g_rho = work;
-    std::vector<double> target_s(n);
-    for (std::size_t i = 0; i < n; ++i) {
-      const double r2 = r[i] * r[i];
-      g_rho[i] = G * m[i] * rho[i] / (r[i] * r[i]);
-      target_s[i] = -3.0 * G * (s[i] * s[i]) / (8.0 * pi * (r2 * r2));
-    }
-    const double p_floor = options.hse_pressure_floor * p_max;
-    double worst = -1;
-    for (std::size_t i = 1; i + 1 < n; ++i) {
-      if (!(r[i] > 0.0) || !(m[i] > 0.0) || P[i] < p_floor) {
-        ++d.hse_points_skipped;
-        continue;
-      }
-      const double eps = hse_min_relative_change;
-      auto p_too_close = [&](std::size_t j) { return std::abs(P[j] - P[i]) < eps * P[i]; };
-      // Radius form: only where P changes by less than a factor 2 across the stencil (next to
-      // a power-law zero of P the three-point difference has an O(1) error).
-      const double by_r = residual_form(r, P, i, -g_rho[i], p_too_close, p_monotone,
-                                        [&](std::size_t a, std::size_t b) {
-                                          return std::min(P[a], P[b]) >= 0.5 * std::max(P[a], P[b]);
-                                        });
-      // Mass form: the mass differences must be resolved as well.
-      const double by_m = residual_form(
-          s, P, i, target_s[i],
-          [&](std::size_t j) { return p_too_close(j) || std::abs(m[j] - m[i]) < eps * m[i]; },
-          p_monotone && m_monotone, [](std::size_t, std::size_t) { return true; });
-      double res;
-      if (std::isnan(by_r) && std::isnan(by_m)) {
-        ++d.hse_points_skipped;
-        continue;
-      }
-      if (std::isnan(by_r)) res = by_m;
-      else if (std::isnan(by_m)) res = by_r;
-      else res = std::min(by_r, by_m);
-      ++d.hse_points_checked;
-      if (res > worst) {
-        worst = res;
-        d.hse_worst_index = i;
-      }
-    }
-    if (d.hse_points_checked > 0) {
-      d.hse_residual_max = worst;
-      d.hse_worst_r_cm = r[d.hse_worst_index];
-      d.hse_worst_m_g = m[d.hse_worst_index];
-      d.hse_worst_line =
-          d.hse_worst_index < model.line.size() ? model.line[d.hse_worst_index] : 0;
-    }
-  }
+  hse_residual(model, options.hse_pressure_floor * p_max, p_monotone, m_monotone, cell, u_ratio,
+               d);
 
   // Post-Newtonian coefficient.
   d.compactness = 2.0 * G * M / (R * constants::c_light * constants::c_light);
-  {
-    std::vector<double> gm_r(n), g_r(n);
-    for (std::size_t i = 0; i < n; ++i) {
-      const double inverse = G / r[i], mass_term = G * m[i] / r[i]; // r = 0: replaced by 0
-      g_r[i] = r[i] > 0.0 ? inverse : 0.0;
-      gm_r[i] = r[i] > 0.0 ? mass_term : 0.0;
-    }
-    double W = 0; // int G m dm / r
-    for (std::size_t i = 1; i < n; ++i) W += 0.5 * (gm_r[i] + gm_r[i - 1]) * (m[i] - m[i - 1]);
-    d.binding_a = W * R / (G * M * M);
-    std::vector<double> u_rad(n), u_model(n);
-    d.model_has_u = model.u.size() == n;
-    const bool model_u_defined = d.model_has_u || g1_above_1;
-    for (std::size_t i = 0; i < n; ++i) u_rad[i] = 3.0 * p_rho[i];
-    if (d.model_has_u)
-      u_model = model.u;
-    else if (model_u_defined)
-      for (std::size_t i = 0; i < n; ++i) u_model[i] = p_rho[i] / (g1[i] - 1.0);
-    const double scale = G * G * M * M * M / (R * R);
-    const PnIntegrals b = pn_integrals(model, u_rad, u_model, gm_r, g_r, p_rho);
-    d.pn_coefficient_radiation_limit = b.a / scale / (3.0 * d.binding_a);
-    d.pn_coefficient_model_energy = std::numeric_limits<double>::quiet_NaN();
-    if (model_u_defined)
-      d.pn_coefficient_model_energy = b.b / scale / (3.0 * d.binding_a);
-    else if (options.pn_energy == PnEnergy::model)
-      throw Error(ErrorKind::numerical,
-                  model.source + ": the post-Newtonian coefficient with the model's internal "
-                                 "energy needs a u column or Gamma1 > 1 everywhere");
-    d.pn_energy = options.pn_energy;
-    d.pn_coefficient = options.pn_energy == PnEnergy::model ? d.pn_coefficient_model_energy
-                                                           : d.pn_coefficient_radiation_limit;
-    d.gamma1_critical_pn = four_thirds + d.pn_coefficient * d.compactness;
-    d.pn_unstable = d.gamma1_pressure_weighted < d.gamma1_critical_pn;
-  }
+  d.binding_a = Omega * R / (G * M * M); // |W| = int G m dm / r
+  d.model_has_u = has_u;
+  const bool model_u_defined = has_u || g1_above_1;
+  const double scale = G * G * M * M * M / (R * R);
+  d.pn_coefficient_radiation_limit = b_rad / scale / (3.0 * d.binding_a);
+  d.pn_coefficient_model_energy = std::numeric_limits<double>::quiet_NaN();
+  if (model_u_defined)
+    d.pn_coefficient_model_energy = b_model / scale / (3.0 * d.binding_a);
+  else if (options.pn_energy == PnEnergy::model)
+    throw Error(ErrorKind::numerical,
+                model.source + ": the post-Newtonian coefficient with the model's internal "
+                               "energy needs a u column or Gamma1 > 1 everywhere");
+  d.pn_energy = options.pn_energy;
+  d.pn_coefficient = options.pn_energy == PnEnergy::model ? d.pn_coefficient_model_energy
+                                                         : d.pn_coefficient_radiation_limit;
+  d.gamma1_critical_pn = four_thirds + d.pn_coefficient * d.compactness;
+  d.pn_unstable = d.gamma1_pressure_weighted < d.gamma1_critical_pn;
 
   // Warnings.
   if (!d.has_centre)

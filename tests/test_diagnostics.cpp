@@ -327,4 +327,19 @@ TEST_CASE("hydrostatic residual: the stencil search agrees with the point-by-poi
     md.P[400] *= 1.05; // a bump: P is no longer monotonic
     check_hse_against_naive(md);
   }
+  SUBCASE("noise on m (P and m stay monotonic) or on P: the largest residual anywhere") {
+    // diagnose() evaluates the mass form only where it can change the largest residual; the
+    // point-by-point definition evaluates both forms everywhere.
+    for (double amplitude : {1e-7, 1e-6, 1e-5}) {
+      CAPTURE(amplitude);
+      auto md = polytrope_model(3.0, 800, c::M_sun, c::R_sun, 5.0 / 3.0);
+      for (std::size_t i = 1; i + 1 < md.size(); ++i)
+        md.m[i] *= 1.0 + amplitude * std::sin(0.7 * static_cast<double>(i));
+      check_hse_against_naive(md);
+      auto mp = polytrope_model(1.5, 800, c::M_sun, c::R_sun, 5.0 / 3.0);
+      for (std::size_t i = 1; i + 1 < mp.size(); ++i)
+        mp.P[i] *= 1.0 + 100 * amplitude * std::sin(1.3 * static_cast<double>(i));
+      check_hse_against_naive(mp);
+    }
+  }
 }

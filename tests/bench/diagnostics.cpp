@@ -1,43 +1,66 @@
 // Benchmark: diagnose() (diagnostics.hpp) and validate_model() (model.hpp) on generated
-// models. Built, not run by ctest:
+// models and on model tables. Built, not run by ctest:
 //
-//   build/tests/bench_diagnostics [REPETITIONS=500] [POINTS=2000]
+//   build/tests/bench_diagnostics [REPETITIONS=500] [POINTS=2000] [TABLE...]
 //
-// Generates an n = 3 polytrope and an n = 1.5 polytrope of POINTS points (Gamma1 = 5/3) and
-// prints the median, mean and minimum wall time per call (the machine is shared: the median and
-// the minimum are the figures to compare). Batch runs diagnose every model of a track,
-// so one call on a 2,000-point model should cost a small fraction of a millisecond.
+// Generates an n = 3 polytrope and an n = 1.5 polytrope of POINTS points (Gamma1 = 5/3), reads
+// each TABLE (e.g. a model of a track written by `radmode make`), and prints the median, mean
+// and minimum wall time and the mean CPU time per call (the machine is shared: the minimum and
+// the CPU time are the figures to compare). Batch runs diagnose every model of a track, so one
+// call on a 2,000-point model should cost a small fraction of a millisecond.
 #include "radmode/diagnostics.hpp"
 #include "radmode/generators.hpp"
 #include "radmode/model.hpp"
+#include "radmode/model_io.hpp"
 #include "timing.hpp"
 
 #include <algorithm>
 #include <chrono>
 #include <cstdio>
 #include <cstdlib>
+#include <ctime>
+#include <string>
 #include <vector>
 
 namespace {
 
 using radmode::bench::Timing;
 
-/// Median and mean wall time of f() over `reps` timed calls (after one untimed call).
-template <class F> Timing time_calls(F f, int reps) {
+/// Process CPU time [s] (std::clock; immune to other processes taking the core).
+double cpu_seconds() { return static_cast<double>(std::clock()) / CLOCKS_PER_SEC; }
+
+struct Result {
+  Timing wall;
+  double cpu_s = 0; ///< mean CPU time per call
+};
+
+/// Wall time per call (median, mean, minimum) and mean CPU time per call of f() over `reps`
+/// timed calls (after one untimed call).
+template <class F> Result time_calls(F f, int reps) {
   double sink = f();
   std::vector<double> t(static_cast<std::size_t>(reps));
+  const double cpu_start = cpu_seconds();
   for (auto& dt : t) {
     const auto start = std::chrono::steady_clock::now();
     sink += f();
     dt = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
   }
+  Result r;
+  r.cpu_s = (cpu_seconds() - cpu_start) / reps;
   if (sink == 0.12345) std::puts("");
-  return radmode::bench::summarize(t);
+  r.wall = radmode::bench::summarize(t);
+  return r;
 }
 
-void report(const char* label, const Timing& t) {
-  std::printf("%-34s median %7.1f us, mean %7.1f us, min %7.1f us per call\n", label,
-              1e6 * t.median_s, 1e6 * t.mean_s, 1e6 * t.min_s);
+void report(const std::string& label, const Result& r) {
+  std::printf("%-34s median %7.1f us, mean %7.1f us, min %7.1f us, cpu %7.1f us per call\n",
+              label.c_str(), 1e6 * r.wall.median_s, 1e6 * r.wall.mean_s, 1e6 * r.wall.min_s,
+              1e6 * r.cpu_s);
+}
+
+void report_model(const std::string& name, const radmode::StellarModel& model, int reps) {
+  report("diagnose, " + name,
+         time_calls([&] { return radmode::diagnose(model).hse_residual_max; }, reps));
 }
 
 } // namespace
@@ -46,7 +69,7 @@ int main(int argc, char** argv) {
   const int reps = argc > 1 ? std::atoi(argv[1]) : 500;
   const long points = argc > 2 ? std::atol(argv[2]) : 2000;
   if (reps <= 0 || points < 10) {
-    std::fprintf(stderr, "usage: bench_diagnostics [REPETITIONS>0] [POINTS>=10]\n");
+    std::fprintf(stderr, "usage: bench_diagnostics [REPETITIONS>0] [POINTS>=10] [TABLE...]\n");
     return 2;
   }
   radmode::GeneratorOptions g;
@@ -54,10 +77,9 @@ int main(int argc, char** argv) {
   const radmode::StellarModel n3 = radmode::make_polytrope(3.0, g);
   const radmode::StellarModel n15 = radmode::make_polytrope(1.5, g);
   std::printf("polytropes of %ld points; %d repetitions\n", points, reps);
-  report("diagnose, n = 3",
-         time_calls([&] { return radmode::diagnose(n3).hse_residual_max; }, reps));
-  report("diagnose, n = 1.5",
-         time_calls([&] { return radmode::diagnose(n15).hse_residual_max; }, reps));
+  report_model("n = 3", n3, reps);
+  report_model("n = 1.5", n15, reps);
+  for (int i = 3; i < argc; ++i) report_model(argv[i], radmode::read_model(argv[i]), reps);
   report("validate_model, n = 3", time_calls(
                                       [&] {
                                         radmode::validate_model(n3);

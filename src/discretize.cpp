@@ -141,13 +141,19 @@ WeakForm make_stellar_form(const Structure& s, SurfaceCondition surface,
     f.d[j] = c.d;
   };
   if (!coefficients_from) {
-    // The same local coordinates in every interval: loop invariants, so the interpolation
-    // weights at them are computed once.
-    std::array<double, q> tg{};
-    for (std::size_t l = 0; l < q; ++l) tg[l] = f.t[l];
-    for (std::size_t i = 0; i < f.interval_count(); ++i) {
-      const double xi = f.x[i], hx = f.x[i + 1] - xi;
-      for (std::size_t l = 0; l < q; ++l) store(i * q + l, xi + tg[l] * hx, s.values_at(i, tg[l]));
+    // Blocks of intervals, their points evaluated together (Structure::values_at_rule: the
+    // same local coordinates in every interval).
+    constexpr std::size_t block = 64;
+    std::array<StructureValues, block * q> values{};
+    const std::size_t ni = f.interval_count();
+    for (std::size_t i0 = 0; i0 < ni; i0 += block) {
+      const std::size_t i1 = std::min(ni, i0 + block);
+      s.values_at_rule(i0, i1, f.t.data(), q, values.data());
+      for (std::size_t i = i0; i < i1; ++i) {
+        const double xi = f.x[i], hx = f.x[i + 1] - xi;
+        for (std::size_t j = i * q; j < (i + 1) * q; ++j)
+          store(j, xi + f.t[j] * hx, values[j - i0 * q]);
+      }
     }
   } else {
     // When the base mesh nests in `coefficients_from`'s (every_other_row), each base interval
@@ -238,10 +244,19 @@ std::optional<Structure> every_other_row(const Structure& s) {
   pick(t.gamma1, c.gamma1);
   pick(t.nabla_ad, c.nabla_ad);
   c.source = t.source;
+  // The per-row values that depend on their own row only (logs, dP/dr, dm/dr) are taken over;
+  // the finite-difference slopes are recomputed by the preparation.
+  const std::size_t n = t.size(), nc = rows.size();
+  std::vector<double> row_values(Structure::row_columns * nc);
+  for (std::size_t col = 0; col < Structure::row_columns_known; ++col) {
+    const double* from = s.m_row.data() + col * n;
+    double* to = row_values.data() + col * nc;
+    for (std::size_t k = 0; k < nc; ++k) to[k] = from[rows[k]];
+  }
   // A subset of a prepared (valid) table keeping its first row, its surface and both rows of
   // every discontinuity is valid and starts at the same inner radius: prepared directly,
   // without validating or extending it again.
-  return Structure(std::move(c), s.inner(), Structure::Prepared{});
+  return Structure(std::move(c), s.inner(), std::move(row_values), Structure::Prepared{});
 }
 
 namespace {

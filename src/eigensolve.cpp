@@ -10,6 +10,7 @@
 #include <Spectra/SymGEigsShiftSolver.h>
 
 #include <algorithm>
+#include <array>
 #include <cmath>
 #include <limits>
 #include <sstream>
@@ -800,6 +801,17 @@ namespace {
 /// linear there). Both interpolations reproduce the kept rows exactly, so the change vanishes
 /// at the kept nodes; at a dropped row it is the coarser interpolant's error at that row.
 /// `kept`: base nodes of the half structure (every_other_node), `half`: that structure.
+///
+/// Simpson's rule on element i (length h, end values u_i, u_{i+1}, slope s = du/h, midpoint
+/// value u_m), with F(D, u) = D.a s^2 + 2 D.b u s + (D.c - lambda D.d) u^2 and D the change
+/// at the ends (R_i, R_{i+1}) and at the midpoint (M_i):
+///     h/6 [F(R_i, u_i) + 4 F(M_i, u_m) + F(R_{i+1}, u_{i+1})]
+///   = (R_i.a + 4 M_i.a + R_{i+1}.a)/(6h) du^2 + (4 M_i.b/3) u_m du + 4h/6 (M_i.c - lambda M_i.d) u_m^2
+///     + the end terms, gathered per node j (from elements j - 1 and j):
+///       (R_j.b/3) u_j (u_{j+1} - u_{j-1}) + (h_{j-1} + h_j)/6 (R_j.c - lambda R_j.d) u_j^2.
+/// Computed in blocks of elements: first the change of the coefficients (the half structure
+/// evaluated at all points of the block together), then these weights, then one pass per mode
+/// without divisions.
 std::vector<double> interpolation_change(const Structure& s, const Structure& half,
                                          const std::vector<std::size_t>& kept,
                                          const WeakForm& form, const TridiagonalPencil& pf,
@@ -808,45 +820,125 @@ std::vector<double> interpolation_change(const Structure& s, const Structure& ha
   const std::size_t offset = pf.node.front(); // 1 with a rigid inner node
   const std::vector<double>& x = form.x;
   const std::vector<double>& r = s.node_r();
-  auto coefficients = [&](const StructureValues& v, double xq) {
-    return stellar_coefficients(v, xq, units);
+  const std::vector<double>& half_r = half.node_r();
+  const std::size_t n_modes = pairs.size();
+  std::vector<double> change(n_modes, 0.0);
+  if (kept.size() < 2 || n_modes == 0) return change;
+  // The eigenvectors by base node (0 at a removed rigid inner node).
+  const std::size_t n_nodes = x.size();
+  std::vector<double> u(n_modes * n_nodes, 0.0);
+  for (std::size_t e = 0; e < n_modes; ++e)
+    std::copy(pairs[e].x.begin(), pairs[e].x.end(),
+              u.begin() + static_cast<std::ptrdiff_t>(e * n_nodes + offset));
+  // The change of P or rho at a point from the two interpolations' values there: where both
+  // interpolate in log space, v_full expm1(ln v_half - ln v_full) (no cancellation, and no
+  // exponential for the small differences: expm1 by its series below 1e-3, error < 2e-18
+  // relative); else the difference of the values.
+  auto change_of = [](double half_v, bool half_log, double full_v, double full_log_v,
+                      bool full_log) {
+    if (half_log && full_log) {
+      const double d = half_v - full_log_v;
+      constexpr double c2 = 1.0 / 2, c3 = 1.0 / 6, c4 = 1.0 / 24, c5 = 1.0 / 120;
+      const double em1 = std::abs(d) < 1e-3 ? d + d * d * (c2 + d * (c3 + d * (c4 + d * c5)))
+                                            : std::expm1(d);
+      return full_v * em1;
+    }
+    return (half_log ? std::exp(half_v) : half_v) - full_v;
   };
-  using Delta = FormCoefficients; // change of the coefficients at one point
-  auto minus = [](const FormCoefficients& u, const FormCoefficients& v) {
-    return Delta{u.a - v.a, u.b - v.b, u.c - v.c, u.d - v.d};
-  };
-  // The whole structure at interval midpoints: the form's own samples when its rule has a
-  // point at t = 1/2 (odd Gauss rules), else evaluated.
-  const auto q = static_cast<std::size_t>(form.points_per_interval);
-  const bool mid_sampled = q % 2 == 1 && form.t[q / 2] == 0.5;
-  std::vector<double> change(pairs.size(), 0.0);
-  const Delta zero{0, 0, 0, 0};
-  for (std::size_t k = 0; k + 1 < kept.size(); ++k) {
-    const double r0 = half.node_r()[k], span = half.node_r()[k + 1] - r0;
-    Delta left = zero; // the kept node: no change
-    for (std::size_t i = kept[k]; i < kept[k + 1]; ++i) {
-      const double h = x[i + 1] - x[i];
-      const double rm = 0.5 * (r[i] + r[i + 1]);
-      const double xm = 0.5 * (x[i] + x[i + 1]);
-      const std::size_t j = i * q + q / 2;
-      const Delta mid = minus(coefficients(half.values_at(k, (rm - r0) / span), xm),
-                              mid_sampled ? FormCoefficients{form.a[j], form.b[j], form.c[j], form.d[j]}
-                                          : coefficients(s.values_at(i, 0.5), xm));
-      const Delta right = i + 1 == kept[k + 1]
-                              ? zero
-                              : minus(coefficients(half.values_at(k, (r[i + 1] - r0) / span), x[i + 1]),
-                                      coefficients(s.values_at(i + 1, 0.0), x[i + 1]));
-      for (std::size_t e = 0; e < pairs.size(); ++e) {
-        const std::vector<double>& v = pairs[e].x;
-        const double lambda = pairs[e].lambda;
-        const double ul = i < offset ? 0.0 : v[i - offset], ur = v[i + 1 - offset];
-        const double slope = (ur - ul) / h, um = 0.5 * (ul + ur);
-        auto F = [&](const Delta& d, double u) {
-          return d.a * slope * slope + 2.0 * d.b * u * slope + (d.c - lambda * d.d) * u * u;
-        };
-        change[e] += h / 6.0 * (F(left, ul) + 4.0 * F(mid, um) + F(right, ur));
+
+  // Blocks of half-structure intervals [k0, k1): each spans one or two model elements, so at
+  // most three evaluation points (two midpoints, one dropped row) per interval.
+  constexpr std::size_t block = 64, max_points = 3 * block, max_elements = 2 * block;
+  std::array<std::size_t, max_points> at_interval{}, full_interval{};
+  std::array<double, max_points> at_t{}, full_t{};
+  std::array<StructureValues, max_points> half_v{}, full_v{}, full_log{};
+  std::array<unsigned char, max_points> half_logs{}, full_logs{};
+  // Weights per element (A du^2, Bm u_m du, Cm - lambda Dm u_m^2) and per node of the block
+  // (Bn, Cn, Dn; node j at index j - first element).
+  std::array<double, max_elements> A{}, Bm{}, Cm{}, Dm{};
+  std::array<double, max_elements + 1> Bn{}, Cn{}, Dn{};
+  for (std::size_t k0 = 0; k0 + 1 < kept.size(); k0 += block) {
+    const std::size_t k1 = std::min(kept.size() - 1, k0 + block);
+    const std::size_t i0 = kept[k0], i1 = kept[k1]; // elements [i0, i1)
+    if (i1 - i0 > 2 * (k1 - k0)) // every_other_node never makes such elements
+      throw Error(ErrorKind::numerical, "interpolation error estimate: an element of the "
+                                        "every-other-row mesh spans more than two model elements");
+    // The points: each element's midpoint, and each dropped row (a node strictly inside a half
+    // interval), in the half structure's and the whole structure's intervals.
+    std::size_t np = 0;
+    for (std::size_t k = k0; k < k1; ++k) {
+      const double r0 = half_r[k], span = half_r[k + 1] - r0;
+      for (std::size_t i = kept[k]; i < kept[k + 1]; ++i) {
+        at_interval[np] = k;
+        at_t[np] = (0.5 * (r[i] + r[i + 1]) - r0) / span;
+        full_interval[np] = i;
+        full_t[np++] = 0.5;
+        if (i + 1 != kept[k + 1]) {
+          at_interval[np] = k;
+          at_t[np] = (r[i + 1] - r0) / span;
+          full_interval[np] = i + 1;
+          full_t[np++] = 0.0;
+        }
       }
-      left = right;
+    }
+    half.log_values_at(at_interval.data(), at_t.data(), np, half_v.data(), half_logs.data());
+    s.log_values_at(full_interval.data(), full_t.data(), np, full_log.data(), full_logs.data());
+    s.values_at(full_interval.data(), full_t.data(), np, full_v.data());
+    // Changes of the coefficients -> weights.
+    auto coefficient_change = [&](std::size_t point, double xp) {
+      const StructureValues& h = half_v[point];
+      const StructureValues& f = full_v[point];
+      const StructureValues& fl = full_log[point];
+      StructureValues d;
+      d.m = h.m - f.m;
+      d.gamma1 = h.gamma1 - f.gamma1;
+      d.P = change_of(h.P, half_logs[point] & Structure::log_P, f.P, fl.P,
+                      full_logs[point] & Structure::log_P);
+      d.rho = change_of(h.rho, half_logs[point] & Structure::log_rho, f.rho, fl.rho,
+                        full_logs[point] & Structure::log_rho);
+      return stellar_coefficients_change(f, d, xp, units);
+    };
+    constexpr double third = 1.0 / 3.0, sixth = 1.0 / 6.0;
+    std::size_t p = 0;
+    for (std::size_t i = i0; i <= i1; ++i) Bn[i - i0] = Cn[i - i0] = Dn[i - i0] = 0.0;
+    for (std::size_t k = k0; k < k1; ++k) {
+      double left_a = 0.0; // change of a at the element's left node (0 at a kept node)
+      for (std::size_t i = kept[k]; i < kept[k + 1]; ++i) {
+        const double h = x[i + 1] - x[i];
+        const FormCoefficients mid = coefficient_change(p++, 0.5 * (x[i] + x[i + 1]));
+        double right_a = 0.0; // change of a at node i + 1 (0 at a kept node)
+        if (i + 1 != kept[k + 1]) {
+          const FormCoefficients right = coefficient_change(p++, x[i + 1]);
+          const std::size_t jn = i + 1 - i0;
+          right_a = right.a;
+          Bn[jn] = third * right.b;
+          // Both elements at this node lie in this block (kept nodes bound the blocks).
+          const double hh6 = sixth * (x[i + 2] - x[i]);
+          Cn[jn] = hh6 * right.c;
+          Dn[jn] = hh6 * right.d;
+        }
+        const std::size_t ie = i - i0;
+        A[ie] = (left_a + 4.0 * mid.a + right_a) / (6.0 * h);
+        Bm[ie] = 4.0 * third * mid.b;
+        Cm[ie] = 4.0 * sixth * h * mid.c;
+        Dm[ie] = 4.0 * sixth * h * mid.d;
+        left_a = right_a;
+      }
+    }
+    // One pass per mode over the block.
+    const std::size_t ne = i1 - i0;
+    for (std::size_t e = 0; e < n_modes; ++e) {
+      const double lambda = pairs[e].lambda;
+      const double* v = u.data() + e * n_nodes + i0; // v[j] = u at node i0 + j
+      double sum = 0.0;
+      for (std::size_t ie = 0; ie < ne; ++ie) {
+        const double du = v[ie + 1] - v[ie], um = 0.5 * (v[ie] + v[ie + 1]);
+        sum += A[ie] * du * du + Bm[ie] * um * du + (Cm[ie] - lambda * Dm[ie]) * um * um;
+      }
+      // Inner nodes of the block (its end nodes are kept: no change there).
+      for (std::size_t jn = 1; jn < ne; ++jn)
+        sum += Bn[jn] * v[jn] * (v[jn + 1] - v[jn - 1]) + (Cn[jn] - lambda * Dn[jn]) * v[jn] * v[jn];
+      change[e] += sum;
     }
   }
   return change;

@@ -4,9 +4,11 @@
 #include "radmode/error.hpp"
 
 #include <algorithm>
+#include <array>
 #include <cmath>
 #include <limits>
 #include <sstream>
+#include <string>
 
 namespace radmode {
 
@@ -70,15 +72,16 @@ Structure::Structure(const StellarModel& model, InnerCondition inner)
     if (!t.line.empty()) t.line.insert(t.line.begin(), std::size_t{0});
     m_extended = true;
   }
-  prepare();
+  prepare(false);
 }
 
-Structure::Structure(StellarModel&& table, InnerCondition inner, Prepared)
-    : m_table(std::move(table)), m_inner(inner) {
-  prepare();
+Structure::Structure(StellarModel&& table, InnerCondition inner, std::vector<double>&& rows,
+                     Prepared)
+    : m_table(std::move(table)), m_row(std::move(rows)), m_inner(inner) {
+  prepare(true);
 }
 
-void Structure::prepare() {
+void Structure::prepare(bool rows_known) {
   const StellarModel& t = m_table;
   m_has_nabla_ad = !t.nabla_ad.empty();
   m_mass = t.m.back();
@@ -93,21 +96,23 @@ void Structure::prepare() {
   // equations, dm/dr = 4 pi r^2 rho and hydrostatic equilibrium dP/dr = -G m rho / r^2 (0 at
   // r = 0); ln rho and ln P where positive (0 elsewhere, unused there); d ln rho / dr by finite
   // differences inside each segment between discontinuities (NaN where rho has a zero).
-  std::vector<double> work(6 * n);
-  double* dm = work.data();
-  double* dP = dm + n;
-  double* lnrho = dP + n;
-  double* lnP = lnrho + n;
-  double* dlnP = lnP + n; // d ln P / dr where P > 0
-  double* dlnrho = dlnP + n;
-  for (std::size_t j = 0; j < n; ++j) {
-    dm[j] = 4 * pi * r[j] * r[j] * rho[j];
-    dP[j] = r[j] > 0 ? -G * m[j] * rho[j] / (r[j] * r[j]) : 0.0;
-    lnrho[j] = rho[j] > 0 ? std::log(rho[j]) : 0.0;
-    lnP[j] = P[j] > 0 ? std::log(P[j]) : 0.0;
-    dlnP[j] = P[j] > 0 ? dP[j] / P[j] : 0.0;
-    dlnrho[j] = std::numeric_limits<double>::quiet_NaN();
-  }
+  // Kept (m_row): every_other_row takes over the values of its rows but the differences.
+  m_row.resize(row_columns * n);
+  double* dm = m_row.data() + dm_col * n;
+  double* dP = m_row.data() + dP_col * n;
+  double* lnrho = m_row.data() + lnrho_col * n;
+  double* lnP = m_row.data() + lnP_col * n;
+  double* dlnP = m_row.data() + dlnP_col * n; // d ln P / dr where P > 0
+  double* dlnrho = m_row.data() + dlnrho_col * n;
+  if (!rows_known)
+    for (std::size_t j = 0; j < n; ++j) {
+      dm[j] = 4 * pi * r[j] * r[j] * rho[j];
+      dP[j] = r[j] > 0 ? -G * m[j] * rho[j] / (r[j] * r[j]) : 0.0;
+      lnrho[j] = rho[j] > 0 ? std::log(rho[j]) : 0.0;
+      lnP[j] = P[j] > 0 ? std::log(P[j]) : 0.0;
+      dlnP[j] = P[j] > 0 ? dP[j] / P[j] : 0.0;
+    }
+  std::fill(dlnrho, dlnrho + n, std::numeric_limits<double>::quiet_NaN());
   {
     // Runs of rows with rho > 0 and no repeated radius inside.
     std::size_t lo = 0;
@@ -120,10 +125,17 @@ void Structure::prepare() {
     }
   }
 
+  // Records are written in place (assembling one in a local and copying it into the vector
+  // made the copy wait for the local's stores), and not zeroed first (Interval's constructor
+  // leaves it uninitialized; every member is set below).
   m_iv.clear();
+  m_mid.clear();
+  m_mid_known.clear();
   m_node_r.clear();
   m_discontinuity.clear();
   m_iv.reserve(n - 1);
+  m_mid.reserve(n - 1);
+  m_mid_known.reserve(n - 1);
   m_node_r.reserve(n);
   m_discontinuity.reserve(n);
   m_node_r.push_back(r[0]);
@@ -133,7 +145,7 @@ void Structure::prepare() {
       m_discontinuity.back() = true;
       continue;
     }
-    Interval iv{};
+    Interval& iv = m_iv.emplace_back();
     iv.row = j;
     iv.r0 = r[j];
     iv.r1 = r[j + 1];
@@ -142,52 +154,190 @@ void Structure::prepare() {
     iv.g1 = gamma1[j + 1];
     iv.na0 = m_has_nabla_ad ? t.nabla_ad[j] : 0.0;
     iv.na1 = m_has_nabla_ad ? t.nabla_ad[j + 1] : 0.0;
-    iv.m = {m[j], m[j + 1], h * dm[j], h * dm[j + 1], Shape::hermite};
+    set_curve(iv.m, m[j], m[j + 1], h * dm[j], h * dm[j + 1], Shape::hermite);
     if (!monotone_cubic(iv.m.f0, iv.m.f1, iv.m.g0, iv.m.g1)) iv.m.shape = Shape::linear;
-    iv.rho = shape_for(rho[j], rho[j + 1], h * rho[j] * dlnrho[j], h * rho[j + 1] * dlnrho[j + 1],
-                       lnrho[j], lnrho[j + 1], h * dlnrho[j], h * dlnrho[j + 1], nullptr);
+    shape_for(iv.rho, rho[j], rho[j + 1], h * rho[j] * dlnrho[j], h * rho[j + 1] * dlnrho[j + 1],
+              lnrho[j], lnrho[j + 1], h * dlnrho[j], h * dlnrho[j + 1], nullptr, nullptr);
     if (rho[j + 1] == 0.0 && rho[j] > 0.0 && j > 0 && r[j - 1] < r[j] && rho[j - 1] > rho[j]) {
       // Density falling to zero: power law in the depth below r_{j+1}.
       const double alpha = std::log(rho[j - 1] / rho[j]) /
                            std::log((r[j + 1] - r[j - 1]) / (r[j + 1] - r[j]));
       if (std::isfinite(alpha) && alpha > 0.0 && alpha <= 20.0)
-        iv.rho = {rho[j], 0.0, alpha, 0.0, Shape::power_to_zero};
+        set_curve(iv.rho, rho[j], 0.0, alpha, 0.0, Shape::power_to_zero);
     }
-    iv.P = shape_for(P[j], P[j + 1], h * dP[j], h * dP[j + 1], lnP[j], lnP[j + 1], h * dlnP[j],
-                     h * dlnP[j + 1], &iv);
-    m_iv.push_back(iv);
+    StructureValues& mid = m_mid.emplace_back();
+    m_mid_known.push_back(shape_for(iv.P, P[j], P[j + 1], h * dP[j], h * dP[j + 1], lnP[j],
+                                    lnP[j + 1], h * dlnP[j], h * dlnP[j + 1], &iv, &mid)
+                              ? 1
+                              : 0);
     m_node_r.push_back(r[j + 1]);
     m_discontinuity.push_back(false);
   }
 }
 
-Structure::Curve Structure::shape_for(double f0, double f1, double g0, double g1, double lf0,
-                                      double lf1, double lg0, double lg1, const Interval* hse) {
+bool Structure::shape_for(Curve& out, double f0, double f1, double g0, double g1, double lf0,
+                          double lf1, double lg0, double lg1, const Interval* hse,
+                          StructureValues* mid) {
   // Candidates: cubic Hermite in log (both ends > 0) and in linear space, each only when its
   // end derivatives are finite and keep it monotone; else the fallback rule (linear in log
   // when both ends are > 0, otherwise linear).
   const bool positive = f0 > 0 && f1 > 0;
-  const Curve lg{lf0, lf1, lg0, lg1, Shape::log_hermite};
   const bool log_ok = positive && std::isfinite(lg0) && std::isfinite(lg1) &&
                       monotone_cubic(lf0, lf1, lg0, lg1);
-  if (log_ok && !hse) return lg; // no choice to make: the log cubic wins
-  const Curve lin{f0, f1, g0, g1, Shape::hermite};
+  if (log_ok && !hse) { // no choice to make: the log cubic wins
+    set_curve(out, lf0, lf1, lg0, lg1, Shape::log_hermite);
+    return false;
+  }
   const bool lin_ok = std::isfinite(g0) && std::isfinite(g1) && monotone_cubic(f0, f1, g0, g1);
   if (lin_ok && log_ok) {
     // Both usable (pressure): take the one closer to hydrostatic equilibrium at the midpoint.
-    const Basis mid = basis(0.5); // constant-folded
+    const Curve lg{lf0, lf1, lg0, lg1, Shape::log_hermite};
+    const Curve lin{f0, f1, g0, g1, Shape::hermite};
+    const Basis b = basis(0.5); // constant-folded
     // Compared per unit t (both sides times the interval length): no division needed.
     const double rm = 0.5 * (hse->r0 + hse->r1), h = hse->r1 - hse->r0;
-    const double m = value(hse->m, 0.5, mid), rho = value(hse->rho, 0.5, mid);
+    const double m = value(hse->m, 0.5, b), rho = value(hse->rho, 0.5, b);
     const double target = rm > 0 ? -constants::G * m * rho * h / (rm * rm) : 0.0;
-    const double res_lin = std::abs(eval(lin, 0.5, mid).second - target);
-    const double res_log = std::abs(eval(lg, 0.5, mid).second - target);
-    return res_log <= res_lin ? lg : lin;
+    const auto v_lin = eval(lin, 0.5, b), v_log = eval(lg, 0.5, b);
+    const double res_lin = std::abs(v_lin.second - target);
+    const double res_log = std::abs(v_log.second - target);
+    const bool use_log = res_log <= res_lin;
+    if (use_log) set_curve(out, lf0, lf1, lg0, lg1, Shape::log_hermite);
+    else set_curve(out, f0, f1, g0, g1, Shape::hermite);
+    // The midpoint values, kept for values_at(interval, 0.5): eval's value is value()'s, bit
+    // for bit, and Gamma1 as values_at computes it.
+    mid->m = m;
+    mid->P = use_log ? v_log.first : v_lin.first;
+    mid->rho = rho;
+    mid->gamma1 = (1.0 - 0.5) * hse->g0 + 0.5 * hse->g1;
+    return true;
   }
-  if (log_ok) return lg;
-  if (lin_ok) return lin;
-  if (positive) return {lf0, lf1, 0, 0, Shape::log_linear};
-  return {f0, f1, 0, 0, Shape::linear};
+  if (log_ok) set_curve(out, lf0, lf1, lg0, lg1, Shape::log_hermite);
+  else if (lin_ok) set_curve(out, f0, f1, g0, g1, Shape::hermite);
+  else if (positive) set_curve(out, lf0, lf1, 0, 0, Shape::log_linear);
+  else set_curve(out, f0, f1, 0, 0, Shape::linear);
+  return false;
+}
+
+void Structure::values_at(const std::size_t* interval, const double* t, std::size_t count,
+                          StructureValues* out) const {
+  // Blocks of points: first every value that needs no exponential, with the arguments of the
+  // exponentials collected; then those exponentials in one loop of independent calls.
+  constexpr std::size_t block = 128;
+  std::array<double, 2 * block> arg;
+  std::array<double*, 2 * block> dest;
+  for (std::size_t k0 = 0; k0 < count; k0 += block) {
+    const std::size_t k1 = std::min(count, k0 + block);
+    std::size_t ne = 0;
+    for (std::size_t k = k0; k < k1; ++k) {
+      const double tk = t[k];
+      if (tk == 0.0 || tk == 1.0 || (tk == 0.5 && m_mid_known[interval[k]])) {
+        out[k] = values_at(interval[k], tk);
+        continue;
+      }
+      const unsigned logs = log_values(interval[k], tk, out[k]); // not at t = 0, 1
+      if (logs & log_P) arg[ne] = out[k].P, dest[ne++] = &out[k].P;
+      if (logs & log_rho) arg[ne] = out[k].rho, dest[ne++] = &out[k].rho;
+    }
+    for (std::size_t a = 0; a < ne; ++a) arg[a] = std::exp(arg[a]);
+    for (std::size_t a = 0; a < ne; ++a) *dest[a] = arg[a];
+  }
+}
+
+void Structure::values_at_rule(std::size_t first, std::size_t last, const double* t,
+                               std::size_t q, StructureValues* out) const {
+  if (q > max_rule_points || last > m_iv.size() || first > last)
+    throw UsageError("Structure::values_at_rule: expected at most " +
+                     std::to_string(max_rule_points) + " points and intervals inside 0.." +
+                     std::to_string(m_iv.size()));
+  std::array<Basis, max_rule_points> b{};
+  for (std::size_t l = 0; l < q; ++l) b[l] = basis(t[l]);
+  // Blocks of intervals: the values without exponential first, each curve's shape looked at
+  // once per interval, the arguments of the exponentials collected; then those exponentials
+  // in one loop of independent calls.
+  constexpr std::size_t block = 64;
+  std::array<double, 2 * max_rule_points * block> arg;
+  std::array<double*, 2 * max_rule_points * block> dest;
+  std::array<bool, max_rule_points> direct{}; // point taken from values_at (row or midpoint)
+  for (std::size_t i0 = first; i0 < last; i0 += block) {
+    const std::size_t i1 = std::min(last, i0 + block);
+    std::size_t ne = 0;
+    for (std::size_t i = i0; i < i1; ++i) {
+      const Interval& iv = m_iv[i];
+      StructureValues* o = out + (i - first) * q;
+      for (std::size_t l = 0; l < q; ++l) {
+        direct[l] = t[l] == 0.0 || t[l] == 1.0 || (t[l] == 0.5 && m_mid_known[i]);
+        if (direct[l]) {
+          o[l] = values_at(i, t[l]);
+        } else {
+          o[l].m = value(iv.m, t[l], b[l]);
+          o[l].gamma1 = (1.0 - t[l]) * iv.g0 + t[l] * iv.g1;
+        }
+      }
+      auto curve = [&](const Curve& c, double StructureValues::*field) {
+        switch (c.shape) {
+        case Shape::log_hermite:
+          for (std::size_t l = 0; l < q; ++l)
+            if (!direct[l]) {
+              arg[ne] = b[l].h00 * c.f0 + b[l].h10 * c.g0 + b[l].h01 * c.f1 + b[l].h11 * c.g1;
+              dest[ne++] = &(o[l].*field);
+            }
+          break;
+        case Shape::log_linear:
+          for (std::size_t l = 0; l < q; ++l)
+            if (!direct[l]) {
+              arg[ne] = c.f0 + t[l] * (c.f1 - c.f0);
+              dest[ne++] = &(o[l].*field);
+            }
+          break;
+        default:
+          for (std::size_t l = 0; l < q; ++l)
+            if (!direct[l]) o[l].*field = value(c, t[l], b[l]);
+        }
+      };
+      curve(iv.P, &StructureValues::P);
+      curve(iv.rho, &StructureValues::rho);
+    }
+    for (std::size_t a = 0; a < ne; ++a) arg[a] = std::exp(arg[a]);
+    for (std::size_t a = 0; a < ne; ++a) *dest[a] = arg[a];
+  }
+}
+
+void Structure::log_values_at(const std::size_t* interval, const double* t, std::size_t count,
+                              StructureValues* out, unsigned char* logs) const {
+  for (std::size_t k = 0; k < count; ++k)
+    logs[k] = static_cast<unsigned char>(log_values(interval[k], t[k], out[k]));
+}
+
+unsigned Structure::log_values(std::size_t interval, double t, StructureValues& out) const {
+  // The arithmetic of value() (so that exp of a log here is value()'s result bit for bit).
+  const Interval& iv = m_iv[interval];
+  unsigned logs = 0;
+  if (t == 0.0 || t == 1.0) { // the table row; logs are the log curves' end values
+    out = values_at(interval, t);
+    if (iv.P.shape == Shape::log_hermite || iv.P.shape == Shape::log_linear)
+      out.P = t == 0.0 ? iv.P.f0 : iv.P.f1, logs |= log_P;
+    if (iv.rho.shape == Shape::log_hermite || iv.rho.shape == Shape::log_linear)
+      out.rho = t == 0.0 ? iv.rho.f0 : iv.rho.f1, logs |= log_rho;
+    return logs;
+  }
+  const Basis b = basis(t);
+  out.m = value(iv.m, t, b);
+  out.gamma1 = (1.0 - t) * iv.g0 + t * iv.g1;
+  auto put = [&](const Curve& c, double& to, unsigned flag) {
+    if (c.shape == Shape::log_hermite) {
+      to = b.h00 * c.f0 + b.h10 * c.g0 + b.h01 * c.f1 + b.h11 * c.g1;
+      logs |= flag;
+    } else if (c.shape == Shape::log_linear) {
+      to = c.f0 + t * (c.f1 - c.f0);
+      logs |= flag;
+    } else {
+      to = value(c, t, b);
+    }
+  };
+  put(iv.P, out.P, log_P);
+  put(iv.rho, out.rho, log_rho);
+  return logs;
 }
 
 inline std::pair<double, double> Structure::eval(const Curve& c, double t, const Basis& b) {

@@ -11,7 +11,9 @@
 #include <doctest/doctest.h>
 
 #include <algorithm>
+#include <array>
 #include <cmath>
+#include <utility>
 
 using namespace radmode;
 
@@ -336,4 +338,35 @@ TEST_CASE("invalid meshes and selections are rejected") {
   PencilRequest bad;
   bad.count = 0;
   CHECK_THROWS_AS(solve_pencil(assemble(f, {all_nodes(f), false, false}), bad), UsageError);
+}
+
+TEST_CASE("stellar_coefficients_change: the change of the coefficients without cancellation") {
+  // Reference: the same coefficients differenced in extended precision (long double), i.e.
+  // the product rule d(uv) = du (v + dv) + u dv applied exactly. For a change of 1e-9 the
+  // double difference of the coefficients keeps only about 7 digits; the change formula
+  // keeps nearly all of them.
+  const StellarUnits u{1.0 / 3.0, 1.0 / 7.0, 1.0 / 2.0};
+  const StructureValues v{0.8, 2.5, 1.7, 5.0 / 3.0};
+  // Tolerance: the reference's own rounding (1e-19 of the values) over the change, and a
+  // few ulp of the change; the plain double difference would miss the second case by 100x.
+  for (const auto& [rel, tol] : {std::pair{1e-2, 1e-13}, std::pair{1e-9, 1e-9}}) {
+    const StructureValues dv{-0.3 * rel * v.m, 0.7 * rel * v.P, -0.4 * rel * v.rho,
+                             0.2 * rel * v.gamma1};
+    const double x = 0.6;
+    const FormCoefficients c = stellar_coefficients_change(v, dv, x, u);
+    using L = long double;
+    auto coeffs = [&](L m, L P, L rho, L g) {
+      const L Pu = P * L(u.inv_P), ru = rho * L(u.inv_rho), mu = m * L(u.inv_M), X = x;
+      return std::array<L, 4>{g * Pu * X * X * X * X, 3 * g * Pu * X * X * X,
+                              9 * g * Pu * X * X - 4 * mu * ru * X, ru * X * X * X * X};
+    };
+    const auto a = coeffs(v.m, v.P, v.rho, v.gamma1);
+    const auto b = coeffs(L(v.m) + L(dv.m), L(v.P) + L(dv.P), L(v.rho) + L(dv.rho),
+                          L(v.gamma1) + L(dv.gamma1));
+    const double got[4] = {c.a, c.b, c.c, c.d};
+    for (int k = 0; k < 4; ++k) {
+      const double ref = static_cast<double>(b[static_cast<std::size_t>(k)] - a[static_cast<std::size_t>(k)]);
+      CHECK(got[k] == doctest::Approx(ref).epsilon(tol));
+    }
+  }
 }

@@ -4,11 +4,13 @@
 #include "analytic_models.hpp"
 #include "radmode/constants.hpp"
 #include "radmode/error.hpp"
+#include "radmode/generators.hpp"
 
 #include <doctest/doctest.h>
 
 #include <cmath>
 #include <iterator>
+#include <vector>
 
 using namespace radmode;
 
@@ -145,10 +147,11 @@ TEST_CASE("an invalid model is rejected by the preparation") {
   CHECK_THROWS_AS(Structure{model}, InputError);
 }
 
-TEST_CASE("values_at: the values of at(), bit for bit, in every interval shape") {
-  // Consistency of the two evaluation paths (values_at is the cheap one the form samplers
-  // use). The table has a discontinuity, a zero-density surface (power law to zero), a zero
-  // surface pressure, log and linear cubics and a centre extension.
+namespace {
+
+/// A table with every interval shape: a discontinuity, a zero-density surface (power law to
+/// zero), a zero surface pressure, log and linear cubics and a centre extension.
+StellarModel every_shape_model() {
   StellarModel m;
   const double xs[] = {0.05, 0.1, 0.2, 0.3, 0.4, 0.5, 0.5, 0.6, 0.7, 0.8, 0.9, 0.95, 1.0};
   for (std::size_t i = 0; i < std::size(xs); ++i) {
@@ -160,7 +163,16 @@ TEST_CASE("values_at: the values of at(), bit for bit, in every interval shape")
     m.rho.push_back(i + 1 == std::size(xs) ? 0.0 : (outer ? 1.0 : 3.0) * (1.0 - x * x));
     m.gamma1.push_back(outer ? 5.0 / 3.0 : 1.4);
   }
-  const Structure s(m);
+  return m;
+}
+
+} // namespace
+
+TEST_CASE("values_at: the values of at(), bit for bit, in every interval shape") {
+  // Consistency of the two evaluation paths (values_at is the cheap one the form samplers
+  // use). The table has a discontinuity, a zero-density surface (power law to zero), a zero
+  // surface pressure, log and linear cubics and a centre extension.
+  const Structure s(every_shape_model());
   REQUIRE(s.extended_centre());
   for (std::size_t i = 0; i < s.interval_count(); ++i)
     for (const double t : {0.0, 0.1127016653792583, 0.3, 0.5, 0.8872983346207417, 1.0}) {
@@ -171,4 +183,65 @@ TEST_CASE("values_at: the values of at(), bit for bit, in every interval shape")
       CHECK(v.rho == p.rho);
       CHECK(v.gamma1 == p.gamma1);
     }
+}
+
+TEST_CASE("the many-point evaluations equal values_at bit for bit") {
+  // values_at over arrays, values_at_rule (one rule in every interval) and log_values_at are
+  // faster paths to the same numbers (the form and the interpolation-error estimate use
+  // them); exp of log_values_at's logs gives values_at's values except at the table rows,
+  // where the logs are the logs of the rows.
+  GeneratorOptions g;
+  g.points = 60;
+  const StellarModel poly = make_polytrope(3.0, g);
+  for (const StellarModel& model : {every_shape_model(), poly}) {
+    const Structure s(model);
+    const std::vector<double> rule = {0.0, 0.1127016653792583, 0.3, 0.5, 0.8872983346207417, 1.0};
+    const std::size_t n = s.interval_count(), q = rule.size();
+    std::vector<std::size_t> interval;
+    std::vector<double> t;
+    for (std::size_t i = 0; i < n; ++i)
+      for (double tl : rule) interval.push_back(i), t.push_back(tl);
+    std::vector<StructureValues> many(t.size()), by_rule(t.size()), logs(t.size());
+    std::vector<unsigned char> flags(t.size());
+    s.values_at(interval.data(), t.data(), t.size(), many.data());
+    s.values_at_rule(0, n, rule.data(), q, by_rule.data());
+    s.log_values_at(interval.data(), t.data(), t.size(), logs.data(), flags.data());
+    int log_P = 0, log_rho = 0;
+    for (std::size_t k = 0; k < t.size(); ++k) {
+      const StructureValues one = s.values_at(interval[k], t[k]);
+      for (const StructureValues* v : {&many[k], &by_rule[k]}) {
+        CHECK(v->m == one.m);
+        CHECK(v->P == one.P);
+        CHECK(v->rho == one.rho);
+        CHECK(v->gamma1 == one.gamma1);
+      }
+      CHECK(logs[k].m == one.m);
+      CHECK(logs[k].gamma1 == one.gamma1);
+      const bool row = t[k] == 0.0 || t[k] == 1.0;
+      // One quantity: its log where flagged (of the row at t = 0, 1), else its value.
+      auto check = [&](double got, double value, bool flagged, int& flagged_count) {
+        if (!flagged) {
+          CHECK(got == value);
+          return;
+        }
+        ++flagged_count;
+        if (row) CHECK(got == std::log(value));
+        else CHECK(std::exp(got) == value);
+      };
+      check(logs[k].P, one.P, flags[k] & Structure::log_P, log_P);
+      check(logs[k].rho, one.rho, flags[k] & Structure::log_rho, log_rho);
+    }
+    CHECK(log_P > 0); // the log shapes were exercised
+    CHECK(log_rho > 0);
+  }
+}
+
+TEST_CASE("values_at_rule rejects a rule longer than its limit and a bad range") {
+  const Structure s(every_shape_model());
+  std::vector<double> rule(Structure::max_rule_points + 1, 0.5);
+  std::vector<StructureValues> out(rule.size() * s.interval_count());
+  CHECK_THROWS_AS(s.values_at_rule(0, s.interval_count(), rule.data(), rule.size(), out.data()),
+                  UsageError);
+  CHECK_THROWS_AS(s.values_at_rule(0, s.interval_count() + 1, rule.data(), 1, out.data()),
+                  UsageError);
 }

@@ -81,6 +81,27 @@ inline FormCoefficients stellar_coefficients(const StructureValues& v, double x,
   return c;
 }
 
+/// The change of stellar_coefficients(v, x, u) when the values change from v to v + dv,
+/// computed from dv (no difference of nearly equal coefficients): with Gamma1 P -> its change
+/// dGamma1 (P + dP) + Gamma1 dP and m rho -> dm (rho + drho) + m drho,
+///     da = d(Gamma1 P) x^4, db = 3 d(Gamma1 P) x^3, dc = 9 d(Gamma1 P) x^2 - 4 d(m rho) x,
+///     dd = drho x^4.
+inline FormCoefficients stellar_coefficients_change(const StructureValues& v,
+                                                    const StructureValues& dv, double x,
+                                                    const StellarUnits& u) {
+  const double P = v.P * u.inv_P, rho = v.rho * u.inv_rho, m = v.m * u.inv_M;
+  const double dP = dv.P * u.inv_P, drho = dv.rho * u.inv_rho, dm = dv.m * u.inv_M;
+  const double dgp = dv.gamma1 * (P + dP) + v.gamma1 * dP;
+  const double dmrho = dm * (rho + drho) + m * drho;
+  const double x2 = x * x;
+  FormCoefficients c;
+  c.a = dgp * x2 * x2;
+  c.b = 3.0 * dgp * x2 * x;
+  c.c = 9.0 * dgp * x2 - 4.0 * dmrho * x;
+  c.d = drho * x2 * x2;
+  return c;
+}
+
 /// The stellar energy form of `structure` in the units above (see the file comment). The base
 /// mesh is structure.node_r() / R. omega2_unit() converts its eigenvalues to s^-2.
 /// If `coefficients_from` is given, the coefficients at the quadrature points are taken from

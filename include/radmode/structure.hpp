@@ -85,8 +85,34 @@ public:
   StructurePoint at(std::size_t interval, double t) const;
 
   /// m, P, rho and Gamma1 of at(interval, t), bit for bit, without computing r, nabla_ad and
-  /// the derivatives: the cheap evaluation used to sample the energy form.
+  /// the derivatives: the cheap evaluation used to sample the energy form. The midpoint
+  /// t = 1/2 is stored by the preparation where it chose the pressure shape there.
   StructureValues values_at(std::size_t interval, double t) const;
+
+  /// values_at(interval[k], t[k]) into out[k] for k < count, bit for bit, with the
+  /// exponentials of the log shapes evaluated together in one loop (cheaper than one call per
+  /// point when many points are wanted).
+  void values_at(const std::size_t* interval, const double* t, std::size_t count,
+                 StructureValues* out) const;
+
+  /// values_at(i, t[l]) for every interval i in [first, last) and l < q into
+  /// out[(i - first) q + l], bit for bit: the same local coordinates in every interval (a
+  /// quadrature rule), so the interpolation weights are computed once and each interval's
+  /// shapes looked at once. Throws UsageError for q > max_rule_points or a bad range.
+  static constexpr std::size_t max_rule_points = 8;
+  void values_at_rule(std::size_t first, std::size_t last, const double* t, std::size_t q,
+                      StructureValues* out) const;
+
+  /// Flags of log_values_at: P (bit 0) or rho (bit 1) is given as its natural log.
+  static constexpr unsigned log_P = 1, log_rho = 2;
+  /// As the bulk values_at, without exponentials: where the interval's curve for P or rho is
+  /// interpolated in log space, out[k].P or out[k].rho is the log of the value (the argument of
+  /// the exponential; exp of it is values_at's result bit for bit, except at t = 0 and 1, where
+  /// it is the log of the table row as the preparation computed it) and logs[k] has log_P or
+  /// log_rho set. The other values are values_at's. For differences of two interpolations of
+  /// the same quantity: P_a - P_b = P_b expm1(ln P_a - ln P_b) has no cancellation.
+  void log_values_at(const std::size_t* interval, const double* t, std::size_t count,
+                     StructureValues* out, unsigned char* logs) const;
 
   /// Interval containing radius r: r_i <= r < r_{i+1}; the last interval also contains R.
   /// A radius at a discontinuity belongs to the OUTER interval. `hint` (optional, in/out) is a
@@ -115,11 +141,18 @@ private:
   friend std::optional<Structure> every_other_row(const Structure& structure);
   struct Prepared {};
   /// Prepares a table that is already valid and needs no centre extension (every_other_row:
-  /// a subset of the rows of a prepared table, both rows of each discontinuity kept).
-  Structure(StellarModel&& table, InnerCondition inner, Prepared);
+  /// a subset of the rows of a prepared table, both rows of each discontinuity kept), with
+  /// its per-row values (m_row layout, the first row_columns_known columns filled) given.
+  Structure(StellarModel&& table, InnerCondition inner, std::vector<double>&& rows, Prepared);
+  /// Per-row values kept in m_row, column c at [c n, (c + 1) n) for n table rows: dm/dr,
+  /// dP/dr, ln rho, ln P, d ln P/dr (each a function of its own row only, so a subset of the
+  /// rows can take them over), and d ln rho/dr (finite differences: recomputed for a subset).
+  enum RowColumn : std::size_t { dm_col, dP_col, lnrho_col, lnP_col, dlnP_col, dlnrho_col,
+                                 row_columns };
+  static constexpr std::size_t row_columns_known = dlnrho_col;
   /// Builds the intervals from m_table (the part of the preparation after the centre
-  /// extension).
-  void prepare();
+  /// extension); computes the per-row values first unless `rows_known`.
+  void prepare(bool rows_known);
 
   enum class Shape { linear, log_linear, hermite, log_hermite, power_to_zero };
   /// One quantity on one interval: end values f0, f1 and end derivatives per unit t, g0, g1
@@ -129,6 +162,7 @@ private:
     Shape shape;
   };
   struct Interval {
+    Interval() {} // members left uninitialized: prepare() sets every one
     std::size_t row; ///< table row at the left end (right end is row + 1)
     double r0, r1, g0, g1, na0, na1;
     Curve m, P, rho;
@@ -138,19 +172,36 @@ private:
     double h00, h10, h01, h11, d00, d10, d01, d11;
   };
   static Basis basis(double t);
-  /// Interpolant for one quantity (see the file comment) from its end values f0, f1 and end
-  /// derivatives per unit t g0, g1, and when f0, f1 > 0 (unused otherwise) the same of its
-  /// log: lf0, lf1, lg0, lg1. `hse` (pressure only) lets it pick between the log and linear
-  /// cubic by the hydrostatic residual at the midpoint.
-  static Curve shape_for(double f0, double f1, double g0, double g1, double lf0, double lf1,
-                         double lg0, double lg1, const Interval* hse);
+  /// Interpolant for one quantity (see the file comment), written into `out`, from its end
+  /// values f0, f1 and end derivatives per unit t g0, g1, and when f0, f1 > 0 (unused
+  /// otherwise) the same of its log: lf0, lf1, lg0, lg1. `hse` (pressure only; its r0, r1, m,
+  /// rho, g0, g1 set) lets it pick between the log and linear cubic by the hydrostatic
+  /// residual at the midpoint; the values computed there are then stored in *mid and true is
+  /// returned (false otherwise, *mid untouched).
+  static bool shape_for(Curve& out, double f0, double f1, double g0, double g1, double lf0,
+                        double lf1, double lg0, double lg1, const Interval* hse,
+                        StructureValues* mid);
+  static void set_curve(Curve& c, double f0, double f1, double g0, double g1, Shape shape) {
+    c.f0 = f0;
+    c.f1 = f1;
+    c.g0 = g0;
+    c.g1 = g1;
+    c.shape = shape;
+  }
+  /// log_values_at for one point; returns the flags.
+  unsigned log_values(std::size_t interval, double t, StructureValues& out) const;
   /// Value and derivative with respect to t (b = basis(t), used by the Hermite shapes).
   static std::pair<double, double> eval(const Curve& c, double t, const Basis& b);
   /// Value only.
   static double value(const Curve& c, double t, const Basis& b);
 
   StellarModel m_table;
+  std::vector<double> m_row; ///< per-row values (RowColumn)
   std::vector<Interval> m_iv;
+  /// Per interval: the values at t = 1/2 where m_mid_known (kept from the pressure choice;
+  /// not in Interval: a larger record measurably slowed the preparation).
+  std::vector<StructureValues> m_mid;
+  std::vector<unsigned char> m_mid_known;
   std::vector<double> m_node_r;
   std::vector<bool> m_discontinuity;
   double m_mass = 0, m_surface_P = 0;
@@ -188,6 +239,7 @@ inline StructureValues Structure::values_at(std::size_t interval, double t) cons
     const std::size_t row = t == 1.0 ? iv.row + 1 : iv.row;
     return {m_table.m[row], m_table.P[row], m_table.rho[row], m_table.gamma1[row]};
   }
+  if (t == 0.5 && m_mid_known[interval]) return m_mid[interval];
   const Basis b = basis(t);
   return {value(iv.m, t, b), value(iv.P, t, b), value(iv.rho, t, b),
           (1.0 - t) * iv.g0 + t * iv.g1};

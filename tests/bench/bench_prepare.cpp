@@ -1,6 +1,7 @@
 // Benchmark of the stages between a model table and the eigen-solve (built, not run by ctest):
 //   cmake --build build --target bench_bench_prepare
-//   build/tests/bench_bench_prepare [POINTS=2000] [BATCHES=31]
+//   build/tests/bench_bench_prepare [POINTS=2000] [BATCHES=31] [STAGE]
+// (with STAGE, only the stage of that name runs: for profiling one stage with perf)
 // On an n = 3 polytrope of POINTS points (make_polytrope), the microseconds per call of each
 // stage between the model table and the eigen-solve:
 //   structure        Structure s(model)                       (validation included)
@@ -11,10 +12,15 @@
 //   assemble_coarse  assemble(form, every other node)
 //   all              all of them in a row: structure, form, every_other_row, form from
 //                    it, three pencils (fine and coarse from the form, fine from the other)
+//   solve_modes      solve_modes(model), 5 modes, default options
+//   solve_modes_norich  the same with richardson = false (no coarse partner, no
+//                    every_other_row, no interpolation-error estimate): the difference to
+//                    solve_modes is mostly every_other_row + the interpolation-change pass
 // Each stage runs BATCHES batches of calls (enough calls for ~2 ms per batch); the figures are
 // the median and the minimum over the batches of thread CPU time per call, so other work on
 // a shared machine disturbs them little. Results: docs/performance.md.
 #include "radmode/discretize.hpp"
+#include "radmode/eigensolve.hpp"
 #include "radmode/generators.hpp"
 #include "radmode/structure.hpp"
 
@@ -62,6 +68,7 @@ int main(int argc, char** argv) {
   GeneratorOptions g;
   g.points = argc > 1 ? static_cast<std::size_t>(std::stoul(argv[1])) : 2000;
   const int batches = argc > 2 ? std::max(1, std::stoi(argv[2])) : 31;
+  const std::string only = argc > 3 ? argv[3] : "";
   const StellarModel model = make_polytrope(3.0, g);
 
   const Structure s(model);
@@ -76,31 +83,36 @@ int main(int argc, char** argv) {
 
   std::printf("n = 3 polytrope, %zu points; thread CPU microseconds per call (%d batches)\n",
               g.points, batches);
-  std::printf("%-16s %10s %10s\n", "stage", "median", "min");
-  auto row = [&](const char* name, const Figures& f) {
-    std::printf("%-16s %10.1f %10.1f\n", name, f.median_us, f.min_us);
+  std::printf("%-18s %10s %10s\n", "stage", "median", "min");
+  auto row = [&](const char* name, auto&& f) {
+    if (!only.empty() && only != name) return;
+    const Figures t = per_call(batches, f);
+    std::printf("%-18s %10.1f %10.1f\n", name, t.median_us, t.min_us);
   };
-  row("structure", per_call(batches, [&] {
-        const Structure t(model);
-        sink += t.node_r()[1];
-      }));
-  row("form", per_call(batches, [&] {
-        sink += make_stellar_form(s, SurfaceCondition::regular).a[1];
-      }));
-  row("every_other_row", per_call(batches, [&] { sink += every_other_row(s)->node_r()[1]; }));
-  row("form_from_half", per_call(batches, [&] {
-        sink += make_stellar_form(s, SurfaceCondition::regular, &*half).a[1];
-      }));
-  row("assemble_fine", per_call(batches, [&] { sink += assemble(form, fine).k_diag[1]; }));
-  row("assemble_coarse", per_call(batches, [&] { sink += assemble(form, coarse).k_diag[1]; }));
-  row("all", per_call(batches, [&] {
-        const Structure t(model);
-        const WeakForm f = make_stellar_form(t, SurfaceCondition::regular);
-        const auto h = every_other_row(t);
-        const WeakForm fh = make_stellar_form(t, SurfaceCondition::regular, &*h);
-        sink += assemble(f, fine).k_diag[1] + assemble(f, coarse).k_diag[1] +
-                assemble(fh, fine).k_diag[1];
-      }));
+  row("structure", [&] {
+    const Structure t(model);
+    sink += t.node_r()[1];
+  });
+  row("form", [&] { sink += make_stellar_form(s, SurfaceCondition::regular).a[1]; });
+  row("every_other_row", [&] { sink += every_other_row(s)->node_r()[1]; });
+  row("form_from_half",
+      [&] { sink += make_stellar_form(s, SurfaceCondition::regular, &*half).a[1]; });
+  row("assemble_fine", [&] { sink += assemble(form, fine).k_diag[1]; });
+  row("assemble_coarse", [&] { sink += assemble(form, coarse).k_diag[1]; });
+  row("all", [&] {
+    const Structure t(model);
+    const WeakForm f = make_stellar_form(t, SurfaceCondition::regular);
+    const auto h = every_other_row(t);
+    const WeakForm fh = make_stellar_form(t, SurfaceCondition::regular, &*h);
+    sink +=
+        assemble(f, fine).k_diag[1] + assemble(f, coarse).k_diag[1] + assemble(fh, fine).k_diag[1];
+  });
+  SolveOptions so;
+  so.count = 5;
+  row("solve_modes", [&] { sink += solve_modes(model, so).modes[0].omega2; });
+  SolveOptions sn = so;
+  sn.richardson = false;
+  row("solve_modes_norich", [&] { sink += solve_modes(model, sn).modes[0].omega2; });
   std::printf("(checksum %g)\n", sink);
   return 0;
 }

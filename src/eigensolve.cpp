@@ -882,8 +882,8 @@ std::vector<double> interpolation_change(const Structure& s, const Structure& ha
       }
     }
     half.log_values_at(at_interval.data(), at_t.data(), np, half_v.data(), half_logs.data());
-    s.log_values_at(full_interval.data(), full_t.data(), np, full_log.data(), full_logs.data());
-    s.values_at(full_interval.data(), full_t.data(), np, full_v.data());
+    s.log_values_at(full_interval.data(), full_t.data(), np, full_log.data(), full_logs.data(),
+                    full_v.data());
     // Changes of the coefficients -> weights.
     auto coefficient_change = [&](std::size_t point, double xp) {
       const StructureValues& h = half_v[point];

@@ -140,6 +140,10 @@ void Structure::prepare(bool rows_known) {
   m_discontinuity.reserve(n);
   m_node_r.push_back(r[0]);
   m_discontinuity.push_back(false);
+  // Where both pressure cubics are usable the shape is chosen at the midpoint: the log cubic
+  // is put in place first, and the logs of P and rho there kept in m_mid; their exponentials
+  // are evaluated afterwards in one loop, then the choice is made.
+  const Basis mid = basis(0.5); // constant-folded
   for (std::size_t j = 0; j + 1 < n; ++j) {
     if (r[j + 1] == r[j]) { // repeated radius: no interval, the node is a discontinuity
       m_discontinuity.back() = true;
@@ -157,7 +161,7 @@ void Structure::prepare(bool rows_known) {
     set_curve(iv.m, m[j], m[j + 1], h * dm[j], h * dm[j + 1], Shape::hermite);
     if (!monotone_cubic(iv.m.f0, iv.m.f1, iv.m.g0, iv.m.g1)) iv.m.shape = Shape::linear;
     shape_for(iv.rho, rho[j], rho[j + 1], h * rho[j] * dlnrho[j], h * rho[j + 1] * dlnrho[j + 1],
-              lnrho[j], lnrho[j + 1], h * dlnrho[j], h * dlnrho[j + 1], nullptr, nullptr);
+              lnrho[j], lnrho[j + 1], h * dlnrho[j], h * dlnrho[j + 1], false);
     if (rho[j + 1] == 0.0 && rho[j] > 0.0 && j > 0 && r[j - 1] < r[j] && rho[j - 1] > rho[j]) {
       // Density falling to zero: power law in the depth below r_{j+1}.
       const double alpha = std::log(rho[j - 1] / rho[j]) /
@@ -165,83 +169,65 @@ void Structure::prepare(bool rows_known) {
       if (std::isfinite(alpha) && alpha > 0.0 && alpha <= 20.0)
         set_curve(iv.rho, rho[j], 0.0, alpha, 0.0, Shape::power_to_zero);
     }
-    StructureValues& mid = m_mid.emplace_back();
-    m_mid_known.push_back(shape_for(iv.P, P[j], P[j + 1], h * dP[j], h * dP[j + 1], lnP[j],
-                                    lnP[j + 1], h * dlnP[j], h * dlnP[j + 1], &iv, &mid)
-                              ? 1
-                              : 0);
+    StructureValues& v = m_mid.emplace_back();
+    const bool choose = shape_for(iv.P, P[j], P[j + 1], h * dP[j], h * dP[j + 1], lnP[j],
+                                  lnP[j + 1], h * dlnP[j], h * dlnP[j + 1], true);
+    m_mid_known.push_back(choose ? 1 : 0);
+    if (choose) {
+      log_argument(iv.P, 0.5, mid, v.P);
+      if (!log_argument(iv.rho, 0.5, mid, v.rho)) v.rho = value(iv.rho, 0.5, mid);
+    }
     m_node_r.push_back(r[j + 1]);
     m_discontinuity.push_back(false);
+  }
+  const std::size_t count = m_iv.size();
+  double unused = 0;
+  for (std::size_t i = 0; i < count; ++i)
+    if (m_mid_known[i]) {
+      m_mid[i].P = std::exp(m_mid[i].P);
+      if (log_argument(m_iv[i].rho, 0.5, mid, unused)) m_mid[i].rho = std::exp(m_mid[i].rho);
+    }
+  // The choice: the cubic closer to hydrostatic equilibrium at the midpoint, compared per
+  // unit t (both sides times the interval length: no division); the values computed there are
+  // kept for values_at(interval, 1/2), bit for bit what value() and eval() give.
+  for (std::size_t i = 0; i < count; ++i) {
+    if (!m_mid_known[i]) continue;
+    Interval& iv = m_iv[i];
+    StructureValues& v = m_mid[i];
+    const std::size_t j = iv.row;
+    const double h = iv.r1 - iv.r0;
+    const Curve lin{P[j], P[j + 1], h * dP[j], h * dP[j + 1], Shape::hermite};
+    const Curve& lg = iv.P;
+    v.m = value(iv.m, 0.5, mid);
+    v.gamma1 = (1.0 - 0.5) * iv.g0 + 0.5 * iv.g1;
+    const double rm = 0.5 * (iv.r0 + iv.r1);
+    const double target = rm > 0 ? -constants::G * v.m * v.rho * h / (rm * rm) : 0.0;
+    const auto v_lin = eval(lin, 0.5, mid);
+    const double dP_log =
+        v.P * (mid.d00 * lg.f0 + mid.d10 * lg.g0 + mid.d01 * lg.f1 + mid.d11 * lg.g1);
+    if (!(std::abs(dP_log - target) <= std::abs(v_lin.second - target))) {
+      v.P = v_lin.first;
+      iv.P = lin;
+    }
   }
 }
 
 bool Structure::shape_for(Curve& out, double f0, double f1, double g0, double g1, double lf0,
-                          double lf1, double lg0, double lg1, const Interval* hse,
-                          StructureValues* mid) {
+                          double lf1, double lg0, double lg1, bool pressure) {
   // Candidates: cubic Hermite in log (both ends > 0) and in linear space, each only when its
   // end derivatives are finite and keep it monotone; else the fallback rule (linear in log
   // when both ends are > 0, otherwise linear).
   const bool positive = f0 > 0 && f1 > 0;
   const bool log_ok = positive && std::isfinite(lg0) && std::isfinite(lg1) &&
                       monotone_cubic(lf0, lf1, lg0, lg1);
-  if (log_ok && !hse) { // no choice to make: the log cubic wins
-    set_curve(out, lf0, lf1, lg0, lg1, Shape::log_hermite);
-    return false;
-  }
-  const bool lin_ok = std::isfinite(g0) && std::isfinite(g1) && monotone_cubic(f0, f1, g0, g1);
-  if (lin_ok && log_ok) {
-    // Both usable (pressure): take the one closer to hydrostatic equilibrium at the midpoint.
-    const Curve lg{lf0, lf1, lg0, lg1, Shape::log_hermite};
-    const Curve lin{f0, f1, g0, g1, Shape::hermite};
-    const Basis b = basis(0.5); // constant-folded
-    // Compared per unit t (both sides times the interval length): no division needed.
-    const double rm = 0.5 * (hse->r0 + hse->r1), h = hse->r1 - hse->r0;
-    const double m = value(hse->m, 0.5, b), rho = value(hse->rho, 0.5, b);
-    const double target = rm > 0 ? -constants::G * m * rho * h / (rm * rm) : 0.0;
-    const auto v_lin = eval(lin, 0.5, b), v_log = eval(lg, 0.5, b);
-    const double res_lin = std::abs(v_lin.second - target);
-    const double res_log = std::abs(v_log.second - target);
-    const bool use_log = res_log <= res_lin;
-    if (use_log) set_curve(out, lf0, lf1, lg0, lg1, Shape::log_hermite);
-    else set_curve(out, f0, f1, g0, g1, Shape::hermite);
-    // The midpoint values, kept for values_at(interval, 0.5): eval's value is value()'s, bit
-    // for bit, and Gamma1 as values_at computes it.
-    mid->m = m;
-    mid->P = use_log ? v_log.first : v_lin.first;
-    mid->rho = rho;
-    mid->gamma1 = (1.0 - 0.5) * hse->g0 + 0.5 * hse->g1;
-    return true;
-  }
   if (log_ok) set_curve(out, lf0, lf1, lg0, lg1, Shape::log_hermite);
-  else if (lin_ok) set_curve(out, f0, f1, g0, g1, Shape::hermite);
+  if (log_ok && !pressure) return false; // no choice to make: the log cubic wins
+  const bool lin_ok = std::isfinite(g0) && std::isfinite(g1) && monotone_cubic(f0, f1, g0, g1);
+  if (log_ok) return lin_ok; // both usable: the caller chooses
+  if (lin_ok) set_curve(out, f0, f1, g0, g1, Shape::hermite);
   else if (positive) set_curve(out, lf0, lf1, 0, 0, Shape::log_linear);
   else set_curve(out, f0, f1, 0, 0, Shape::linear);
   return false;
-}
-
-void Structure::values_at(const std::size_t* interval, const double* t, std::size_t count,
-                          StructureValues* out) const {
-  // Blocks of points: first every value that needs no exponential, with the arguments of the
-  // exponentials collected; then those exponentials in one loop of independent calls.
-  constexpr std::size_t block = 128;
-  std::array<double, 2 * block> arg;
-  std::array<double*, 2 * block> dest;
-  for (std::size_t k0 = 0; k0 < count; k0 += block) {
-    const std::size_t k1 = std::min(count, k0 + block);
-    std::size_t ne = 0;
-    for (std::size_t k = k0; k < k1; ++k) {
-      const double tk = t[k];
-      if (tk == 0.0 || tk == 1.0 || (tk == 0.5 && m_mid_known[interval[k]])) {
-        out[k] = values_at(interval[k], tk);
-        continue;
-      }
-      const unsigned logs = log_values(interval[k], tk, out[k]); // not at t = 0, 1
-      if (logs & log_P) arg[ne] = out[k].P, dest[ne++] = &out[k].P;
-      if (logs & log_rho) arg[ne] = out[k].rho, dest[ne++] = &out[k].rho;
-    }
-    for (std::size_t a = 0; a < ne; ++a) arg[a] = std::exp(arg[a]);
-    for (std::size_t a = 0; a < ne; ++a) *dest[a] = arg[a];
-  }
 }
 
 void Structure::values_at_rule(std::size_t first, std::size_t last, const double* t,
@@ -275,25 +261,11 @@ void Structure::values_at_rule(std::size_t first, std::size_t last, const double
         }
       }
       auto curve = [&](const Curve& c, double StructureValues::*field) {
-        switch (c.shape) {
-        case Shape::log_hermite:
-          for (std::size_t l = 0; l < q; ++l)
-            if (!direct[l]) {
-              arg[ne] = b[l].h00 * c.f0 + b[l].h10 * c.g0 + b[l].h01 * c.f1 + b[l].h11 * c.g1;
-              dest[ne++] = &(o[l].*field);
-            }
-          break;
-        case Shape::log_linear:
-          for (std::size_t l = 0; l < q; ++l)
-            if (!direct[l]) {
-              arg[ne] = c.f0 + t[l] * (c.f1 - c.f0);
-              dest[ne++] = &(o[l].*field);
-            }
-          break;
-        default:
-          for (std::size_t l = 0; l < q; ++l)
-            if (!direct[l]) o[l].*field = value(c, t[l], b[l]);
-        }
+        for (std::size_t l = 0; l < q; ++l)
+          if (!direct[l]) {
+            if (log_argument(c, t[l], b[l], arg[ne])) dest[ne++] = &(o[l].*field);
+            else o[l].*field = value(c, t[l], b[l]);
+          }
       };
       curve(iv.P, &StructureValues::P);
       curve(iv.rho, &StructureValues::rho);
@@ -304,9 +276,32 @@ void Structure::values_at_rule(std::size_t first, std::size_t last, const double
 }
 
 void Structure::log_values_at(const std::size_t* interval, const double* t, std::size_t count,
-                              StructureValues* out, unsigned char* logs) const {
+                              StructureValues* out, unsigned char* logs,
+                              StructureValues* values) const {
   for (std::size_t k = 0; k < count; ++k)
     logs[k] = static_cast<unsigned char>(log_values(interval[k], t[k], out[k]));
+  if (!values) return;
+  // The values too: the table rows and the kept midpoints as they are, the exponentials of
+  // the logs in one loop per block.
+  constexpr std::size_t block = 128;
+  std::array<double, 2 * block> arg;
+  std::array<double*, 2 * block> dest;
+  for (std::size_t k0 = 0; k0 < count; k0 += block) {
+    const std::size_t k1 = std::min(count, k0 + block);
+    std::size_t ne = 0;
+    for (std::size_t k = k0; k < k1; ++k) {
+      const double tk = t[k];
+      if (tk == 0.0 || tk == 1.0 || (tk == 0.5 && m_mid_known[interval[k]])) {
+        values[k] = values_at(interval[k], tk);
+        continue;
+      }
+      values[k] = out[k];
+      if (logs[k] & log_P) arg[ne] = out[k].P, dest[ne++] = &values[k].P;
+      if (logs[k] & log_rho) arg[ne] = out[k].rho, dest[ne++] = &values[k].rho;
+    }
+    for (std::size_t a = 0; a < ne; ++a) arg[a] = std::exp(arg[a]);
+    for (std::size_t a = 0; a < ne; ++a) *dest[a] = arg[a];
+  }
 }
 
 unsigned Structure::log_values(std::size_t interval, double t, StructureValues& out) const {
@@ -315,9 +310,11 @@ unsigned Structure::log_values(std::size_t interval, double t, StructureValues& 
   unsigned logs = 0;
   if (t == 0.0 || t == 1.0) { // the table row; logs are the log curves' end values
     out = values_at(interval, t);
-    if (iv.P.shape == Shape::log_hermite || iv.P.shape == Shape::log_linear)
-      out.P = t == 0.0 ? iv.P.f0 : iv.P.f1, logs |= log_P;
-    if (iv.rho.shape == Shape::log_hermite || iv.rho.shape == Shape::log_linear)
+    // A log curve's end values are the logs of its rows.
+    double unused = 0;
+    const Basis b = basis(t);
+    if (log_argument(iv.P, t, b, unused)) out.P = t == 0.0 ? iv.P.f0 : iv.P.f1, logs |= log_P;
+    if (log_argument(iv.rho, t, b, unused))
       out.rho = t == 0.0 ? iv.rho.f0 : iv.rho.f1, logs |= log_rho;
     return logs;
   }
@@ -325,15 +322,8 @@ unsigned Structure::log_values(std::size_t interval, double t, StructureValues& 
   out.m = value(iv.m, t, b);
   out.gamma1 = (1.0 - t) * iv.g0 + t * iv.g1;
   auto put = [&](const Curve& c, double& to, unsigned flag) {
-    if (c.shape == Shape::log_hermite) {
-      to = b.h00 * c.f0 + b.h10 * c.g0 + b.h01 * c.f1 + b.h11 * c.g1;
-      logs |= flag;
-    } else if (c.shape == Shape::log_linear) {
-      to = c.f0 + t * (c.f1 - c.f0);
-      logs |= flag;
-    } else {
-      to = value(c, t, b);
-    }
+    if (log_argument(c, t, b, to)) logs |= flag;
+    else to = value(c, t, b);
   };
   put(iv.P, out.P, log_P);
   put(iv.rho, out.rho, log_rho);

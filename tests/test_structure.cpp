@@ -186,10 +186,10 @@ TEST_CASE("values_at: the values of at(), bit for bit, in every interval shape")
 }
 
 TEST_CASE("the many-point evaluations equal values_at bit for bit") {
-  // values_at over arrays, values_at_rule (one rule in every interval) and log_values_at are
-  // faster paths to the same numbers (the form and the interpolation-error estimate use
-  // them); exp of log_values_at's logs gives values_at's values except at the table rows,
-  // where the logs are the logs of the rows.
+  // values_at_rule (one rule in every interval) and log_values_at with values are faster
+  // paths to the same numbers (the form and the interpolation-error estimate use them); exp
+  // of log_values_at's logs gives values_at's values except at the table rows, where the logs
+  // are the logs of the rows.
   GeneratorOptions g;
   g.points = 60;
   const StellarModel poly = make_polytrope(3.0, g);
@@ -203,9 +203,8 @@ TEST_CASE("the many-point evaluations equal values_at bit for bit") {
       for (double tl : rule) interval.push_back(i), t.push_back(tl);
     std::vector<StructureValues> many(t.size()), by_rule(t.size()), logs(t.size());
     std::vector<unsigned char> flags(t.size());
-    s.values_at(interval.data(), t.data(), t.size(), many.data());
     s.values_at_rule(0, n, rule.data(), q, by_rule.data());
-    s.log_values_at(interval.data(), t.data(), t.size(), logs.data(), flags.data());
+    s.log_values_at(interval.data(), t.data(), t.size(), logs.data(), flags.data(), many.data());
     int log_P = 0, log_rho = 0;
     for (std::size_t k = 0; k < t.size(); ++k) {
       const StructureValues one = s.values_at(interval[k], t[k]);

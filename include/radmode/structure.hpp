@@ -89,12 +89,6 @@ public:
   /// t = 1/2 is stored by the preparation where it chose the pressure shape there.
   StructureValues values_at(std::size_t interval, double t) const;
 
-  /// values_at(interval[k], t[k]) into out[k] for k < count, bit for bit, with the
-  /// exponentials of the log shapes evaluated together in one loop (cheaper than one call per
-  /// point when many points are wanted).
-  void values_at(const std::size_t* interval, const double* t, std::size_t count,
-                 StructureValues* out) const;
-
   /// values_at(i, t[l]) for every interval i in [first, last) and l < q into
   /// out[(i - first) q + l], bit for bit: the same local coordinates in every interval (a
   /// quadrature rule), so the interpolation weights are computed once and each interval's
@@ -105,14 +99,17 @@ public:
 
   /// Flags of log_values_at: P (bit 0) or rho (bit 1) is given as its natural log.
   static constexpr unsigned log_P = 1, log_rho = 2;
-  /// As the bulk values_at, without exponentials: where the interval's curve for P or rho is
-  /// interpolated in log space, out[k].P or out[k].rho is the log of the value (the argument of
-  /// the exponential; exp of it is values_at's result bit for bit, except at t = 0 and 1, where
-  /// it is the log of the table row as the preparation computed it) and logs[k] has log_P or
-  /// log_rho set. The other values are values_at's. For differences of two interpolations of
-  /// the same quantity: P_a - P_b = P_b expm1(ln P_a - ln P_b) has no cancellation.
+  /// values_at(interval[k], t[k]) for k < count without exponentials: where the interval's
+  /// curve for P or rho is interpolated in log space, out[k].P or out[k].rho is the log of the
+  /// value (the argument of the exponential; exp of it is values_at's result bit for bit,
+  /// except at t = 0 and 1, where it is the log of the table row as the preparation computed
+  /// it) and logs[k] has log_P or log_rho set; the other values are values_at's. For
+  /// differences of two interpolations of the same quantity: P_a - P_b =
+  /// P_b expm1(ln P_a - ln P_b) has no cancellation. With `values`, values_at's results are
+  /// stored there too, bit for bit (the exponentials evaluated together in one loop).
   void log_values_at(const std::size_t* interval, const double* t, std::size_t count,
-                     StructureValues* out, unsigned char* logs) const;
+                     StructureValues* out, unsigned char* logs,
+                     StructureValues* values = nullptr) const;
 
   /// Interval containing radius r: r_i <= r < r_{i+1}; the last interval also contains R.
   /// A radius at a discontinuity belongs to the OUTER interval. `hint` (optional, in/out) is a
@@ -174,13 +171,24 @@ private:
   static Basis basis(double t);
   /// Interpolant for one quantity (see the file comment), written into `out`, from its end
   /// values f0, f1 and end derivatives per unit t g0, g1, and when f0, f1 > 0 (unused
-  /// otherwise) the same of its log: lf0, lf1, lg0, lg1. `hse` (pressure only; its r0, r1, m,
-  /// rho, g0, g1 set) lets it pick between the log and linear cubic by the hydrostatic
-  /// residual at the midpoint; the values computed there are then stored in *mid and true is
-  /// returned (false otherwise, *mid untouched).
+  /// otherwise) the same of its log: lf0, lf1, lg0, lg1. For the pressure, when both the log
+  /// and the linear cubic are usable, `out` is the log cubic and true is returned: the caller
+  /// picks one by the hydrostatic residual at the midpoint.
   static bool shape_for(Curve& out, double f0, double f1, double g0, double g1, double lf0,
-                        double lf1, double lg0, double lg1, const Interval* hse,
-                        StructureValues* mid);
+                        double lf1, double lg0, double lg1, bool pressure);
+  /// For a log-space curve (log_hermite, log_linear): its log at t into `arg` (exp(arg) is
+  /// value(c, t, b), bit for bit) and true; false otherwise (arg untouched).
+  static bool log_argument(const Curve& c, double t, const Basis& b, double& arg) {
+    if (c.shape == Shape::log_hermite) {
+      arg = b.h00 * c.f0 + b.h10 * c.g0 + b.h01 * c.f1 + b.h11 * c.g1;
+      return true;
+    }
+    if (c.shape == Shape::log_linear) {
+      arg = c.f0 + t * (c.f1 - c.f0);
+      return true;
+    }
+    return false;
+  }
   static void set_curve(Curve& c, double f0, double f1, double g0, double g1, Shape shape) {
     c.f0 = f0;
     c.f1 = f1;

@@ -867,15 +867,15 @@ std::vector<double> interpolation_change(const Structure& s, const Structure& ha
     // interval), in the half structure's and the whole structure's intervals.
     std::size_t np = 0;
     for (std::size_t k = k0; k < k1; ++k) {
-      const double r0 = half_r[k], span = half_r[k + 1] - r0;
+      const double r0 = half_r[k], inv_span = 1.0 / (half_r[k + 1] - r0);
       for (std::size_t i = kept[k]; i < kept[k + 1]; ++i) {
         at_interval[np] = k;
-        at_t[np] = (0.5 * (r[i] + r[i + 1]) - r0) / span;
+        at_t[np] = (0.5 * (r[i] + r[i + 1]) - r0) * inv_span;
         full_interval[np] = i;
         full_t[np++] = 0.5;
         if (i + 1 != kept[k + 1]) {
           at_interval[np] = k;
-          at_t[np] = (r[i + 1] - r0) / span;
+          at_t[np] = (r[i + 1] - r0) * inv_span;
           full_interval[np] = i + 1;
           full_t[np++] = 0.0;
         }
@@ -925,20 +925,29 @@ std::vector<double> interpolation_change(const Structure& s, const Structure& ha
         left_a = right_a;
       }
     }
-    // One pass per mode over the block.
+    // One pass per mode over the block, elements and inner nodes (a block's end nodes are
+    // kept: no change there) together; two running sums, so that the additions of
+    // neighbouring elements do not wait for each other.
     const std::size_t ne = i1 - i0;
     for (std::size_t e = 0; e < n_modes; ++e) {
       const double lambda = pairs[e].lambda;
       const double* v = u.data() + e * n_nodes + i0; // v[j] = u at node i0 + j
-      double sum = 0.0;
-      for (std::size_t ie = 0; ie < ne; ++ie) {
+      auto element = [&](std::size_t ie) {
         const double du = v[ie + 1] - v[ie], um = 0.5 * (v[ie] + v[ie + 1]);
-        sum += A[ie] * du * du + Bm[ie] * um * du + (Cm[ie] - lambda * Dm[ie]) * um * um;
+        return A[ie] * du * du + Bm[ie] * um * du + (Cm[ie] - lambda * Dm[ie]) * um * um;
+      };
+      auto node = [&](std::size_t jn) {
+        return Bn[jn] * v[jn] * (v[jn + 1] - v[jn - 1]) +
+               (Cn[jn] - lambda * Dn[jn]) * v[jn] * v[jn];
+      };
+      double even = element(0), odd = 0.0;
+      std::size_t k = 1;
+      for (; k + 2 <= ne; k += 2) {
+        even += element(k) + node(k);
+        odd += element(k + 1) + node(k + 1);
       }
-      // Inner nodes of the block (its end nodes are kept: no change there).
-      for (std::size_t jn = 1; jn < ne; ++jn)
-        sum += Bn[jn] * v[jn] * (v[jn + 1] - v[jn - 1]) + (Cn[jn] - lambda * Dn[jn]) * v[jn] * v[jn];
-      change[e] += sum;
+      if (k < ne) even += element(k) + node(k);
+      change[e] += even + odd;
     }
   }
   return change;

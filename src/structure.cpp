@@ -278,8 +278,19 @@ void Structure::values_at_rule(std::size_t first, std::size_t last, const double
 void Structure::log_values_at(const std::size_t* interval, const double* t, std::size_t count,
                               StructureValues* out, unsigned char* logs,
                               StructureValues* values) const {
-  for (std::size_t k = 0; k < count; ++k)
-    logs[k] = static_cast<unsigned char>(log_values(interval[k], t[k], out[k]));
+  const Basis mid = basis(0.5); // constant-folded
+  for (std::size_t k = 0; k < count; ++k) {
+    const std::size_t i = interval[k];
+    if (t[k] == 0.5 && m_mid_known[i]) { // the kept midpoint values; logs where log curves
+      out[k] = m_mid[i];
+      unsigned flags = 0;
+      if (log_argument(m_iv[i].P, 0.5, mid, out[k].P)) flags |= log_P;
+      if (log_argument(m_iv[i].rho, 0.5, mid, out[k].rho)) flags |= log_rho;
+      logs[k] = static_cast<unsigned char>(flags);
+    } else {
+      logs[k] = static_cast<unsigned char>(log_values(i, t[k], out[k]));
+    }
+  }
   if (!values) return;
   // The values too: the table rows and the kept midpoints as they are, the exponentials of
   // the logs in one loop per block.

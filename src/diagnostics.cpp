@@ -223,10 +223,11 @@ void hse_residual(const StellarModel& model, double p_floor, bool p_monotone, bo
     const double before = P[i - 1], after = P[i + 1];
     const double lower = after < before ? after : before; // std::min, std::max
     const double higher = before < after ? after : before;
-    const bool nearest = (r[i - 1] != r[i]) & (r[i + 1] != r[i]) &
-                         !(std::abs(before - P[i]) < eps * P[i]) &
-                         !(std::abs(after - P[i]) < eps * P[i]);
-    const bool usable = (target_r[i] < 0.0) & (lower >= 0.5 * higher); // as p_resolved
+    // (Bitwise & on 0/1 integers: no branches, so the loop vectorizes.)
+    const bool nearest = (int(r[i - 1] != r[i]) & int(r[i + 1] != r[i]) &
+                          int(!(std::abs(before - P[i]) < eps * P[i])) &
+                          int(!(std::abs(after - P[i]) < eps * P[i]))) != 0;
+    const bool usable = (int(target_r[i] < 0.0) & int(lower >= 0.5 * higher)) != 0; // as p_resolved
     const double value = usable ? by_r[i] : nan;
     by_r[i] = nearest ? value : widen_marker;
   }

@@ -356,11 +356,11 @@ TEST_CASE("stellar_coefficients_change: the change of the coefficients without c
     const FormCoefficients c = stellar_coefficients_change(v, dv, x, u);
     using L = long double;
     auto coeffs = [&](L m, L P, L rho, L g) {
-      const L Pu = P * L(u.inv_P), ru = rho * L(u.inv_rho), mu = m * L(u.inv_M), X = x;
+      const L Pu = P * L(u.inv_P), ru = rho * L(u.inv_rho), mu = m * L(u.inv_M), X = L(x);
       return std::array<L, 4>{g * Pu * X * X * X * X, 3 * g * Pu * X * X * X,
                               9 * g * Pu * X * X - 4 * mu * ru * X, ru * X * X * X * X};
     };
-    const auto a = coeffs(v.m, v.P, v.rho, v.gamma1);
+    const auto a = coeffs(L(v.m), L(v.P), L(v.rho), L(v.gamma1));
     const auto b = coeffs(L(v.m) + L(dv.m), L(v.P) + L(dv.P), L(v.rho) + L(dv.rho),
                           L(v.gamma1) + L(dv.gamma1));
     const double got[4] = {c.a, c.b, c.c, c.d};

@@ -491,7 +491,7 @@ PencilSpectrum refine_from(const TridiagonalPencil& p, int i0, int i1,
   Engine eng(p);
   PencilSpectrum out;
   const std::vector<detail::RqiStats> stats =
-      detail::rayleigh_iterate(p, starts, 2, 4, eng.scale, residual_tol, first_shifts, from);
+      detail::rayleigh_iterate(p, starts, 2, 8, eng.scale, residual_tol, first_shifts, from);
   out.iteration_work = iteration_work(stats, p.size());
   finalize(eng, eng.finish_all(std::move(starts), true, &stats), i0, i1, out);
   return out;

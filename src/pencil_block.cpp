@@ -425,12 +425,16 @@ void iterate_block(const TridiagonalPencil& p, std::vector<double>* const* xs, c
     bool any = false, done[B] = {};
     for (std::size_t b = 0; b < B; ++b) {
       if (!active[b]) continue;
-      // Converged once the quotient stops moving (cubic convergence: another step would change
-      // nothing) or the residual is small enough.
-      if (it >= min_steps &&
-          std::abs(rho[b] - previous[b]) <= 1e-14 * std::abs(rho[b]) + 4 * eps * scale)
+      // Converged once the residual is small enough (it counts as 0 at its round-off level),
+      // or, when no residual is measured, once the quotient stops moving. (The quotient's
+      // error is the square of the residual's: it stops moving at a residual near 1e-7, which
+      // one more step takes to round-off.)
+      if (residual_tol > 0) {
+        if (res[b] <= residual_tol) active[b] = false;
+      } else if (it >= min_steps &&
+                 std::abs(rho[b] - previous[b]) <= 1e-14 * std::abs(rho[b]) + 4 * eps * scale) {
         active[b] = false;
-      if (residual_tol > 0 && res[b] <= residual_tol) active[b] = false;
+      }
       previous[b] = rho[b];
       if (active[b]) any = true;
       else done[b] = true;

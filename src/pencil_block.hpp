@@ -32,11 +32,12 @@ struct RqiStats {
 };
 
 /// Rayleigh quotient iteration on every vector of `xs` together (each of size p.size()):
-/// x <- (K - rho(x) M)^{-1} M x, scaled to x^T M x = 1, at most `max_steps` steps. A vector
-/// stops once, after at least `min_steps` steps, its quotient changes by no more than
-/// 1e-14 |rho| + 4 eps `scale` between steps (scale: magnitude of the spectrum), or (when
-/// residual_tol > 0) after any step whose residual ||K x - rho M x|| / (||K x|| + |rho| ||M x||)
-/// is at most max(residual_tol, 10 x its round-off level, see RqiStats::a_norm). Vectors that become zero or non-finite are left as they were
+/// x <- (K - rho(x) M)^{-1} M x, scaled to x^T M x = 1, at most `max_steps` steps. With
+/// residual_tol > 0 a vector stops after the first step whose residual
+/// ||K x - rho M x|| / (||K x|| + |rho| ||M x||) is at most max(residual_tol, 10 x its
+/// round-off level, see RqiStats::a_norm); otherwise once, after at least `min_steps` steps,
+/// its quotient changes by no more than 1e-14 |rho| + 4 eps `scale` between steps (scale:
+/// magnitude of the spectrum). Vectors that become zero or non-finite are left as they were
 /// before the failing step. The first step of vector i uses first_shifts[i] instead of its
 /// quotient when given (and not NaN): a better estimate of the eigenvalue, e.g. extrapolated
 /// from coarser meshes, makes that step far more effective. Returns what the last step of each

@@ -479,7 +479,7 @@ std::size_t iteration_work(const std::vector<detail::RqiStats>& stats, std::size
 }
 
 /// Rayleigh quotient iteration from good start vectors (e.g. eigenvectors of a coarser mesh
-/// prolonged to this one): one to four steps, each an O(N) LDL^T factorization and solve (all
+/// prolonged to this one): two to eight steps, each an O(N) LDL^T factorization and solve (all
 /// vectors advanced together, see pencil_block.hpp), until the residual is below
 /// `residual_tol` or the quotient stops moving; then the same inertia verification and
 /// recovery as solve_pencil. (The eigenvalue error is of the order of the squared residual.)

@@ -24,33 +24,9 @@
 
 namespace {
 
-using radmode::bench::Timing;
 
-/// Process CPU time [s] (std::clock; immune to other processes taking the core).
-double cpu_seconds() { return static_cast<double>(std::clock()) / CLOCKS_PER_SEC; }
-
-struct Result {
-  Timing wall;
-  double cpu_s = 0; ///< mean CPU time per call
-};
-
-/// Wall time per call (median, mean, minimum) and mean CPU time per call of f() over `reps`
-/// timed calls (after one untimed call).
-template <class F> Result time_calls(F f, int reps) {
-  double sink = f();
-  std::vector<double> t(static_cast<std::size_t>(reps));
-  const double cpu_start = cpu_seconds();
-  for (auto& dt : t) {
-    const auto start = std::chrono::steady_clock::now();
-    sink += f();
-    dt = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
-  }
-  Result r;
-  r.cpu_s = (cpu_seconds() - cpu_start) / reps;
-  if (sink == 0.12345) std::puts("");
-  r.wall = radmode::bench::summarize(t);
-  return r;
-}
+using radmode::bench::time_calls;
+using Result = radmode::bench::Measured;
 
 void report(const std::string& label, const Result& r) {
   std::printf("%-34s median %7.1f us, mean %7.1f us, min %7.1f us, cpu %7.1f us per call\n",

@@ -49,36 +49,13 @@ std::string make_table(std::size_t n, bool solar_units, int digits) {
   return t;
 }
 
-using radmode::bench::Timing;
+using radmode::bench::Measured;
+using radmode::bench::time_calls;
 
-/// Median and mean wall time of one parse over `reps` timed parses (after one untimed parse
-/// that builds any lazily initialised tables). The median is robust against other processes
-/// taking the core for a while.
-/// Process CPU time [s] (std::clock; immune to other processes taking the core).
-double cpu_seconds() {
-  return static_cast<double>(std::clock()) / CLOCKS_PER_SEC;
-}
-
-/// Wall time per call (median, mean, minimum) and mean CPU time per call of `call` over `reps`
-/// timed calls, after one untimed call that builds any lazily initialised tables.
-template <class Call> std::pair<Timing, double> time_calls(Call call, int reps) {
-  std::size_t sink = call();
-  std::vector<double> t(static_cast<std::size_t>(reps));
-  const double cpu_start = cpu_seconds();
-  for (auto& dt : t) {
-    const auto start = std::chrono::steady_clock::now();
-    sink += call();
-    dt = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
-  }
-  const double cpu = (cpu_seconds() - cpu_start) / reps;
-  if (sink == 0) std::puts("(no points)");
-  return {radmode::bench::summarize(t), cpu};
-}
-
-void print_line(const char* label, const std::string& what, const std::pair<Timing, double>& t) {
+void print_line(const char* label, const std::string& what, const Measured& t) {
   std::printf("%-27s(%s): median %7.1f us, mean %7.1f us, min %7.1f us, cpu %7.1f us per call\n",
-              label, what.c_str(), 1e6 * t.first.median_s, 1e6 * t.first.mean_s,
-              1e6 * t.first.min_s, 1e6 * t.second);
+              label, what.c_str(), 1e6 * t.wall.median_s, 1e6 * t.wall.mean_s,
+              1e6 * t.wall.min_s, 1e6 * t.cpu_s);
 }
 
 void report(const char* label, const std::string& text, const radmode::ReadOptions& options,

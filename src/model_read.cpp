@@ -18,7 +18,9 @@
 #include <limits>
 #include <memory>
 
+#include <fcntl.h>
 #include <sys/stat.h>
+#include <unistd.h>
 
 namespace radmode {
 
@@ -123,10 +125,11 @@ std::string_view trim(std::string_view s) {
 // A table number of up to 15 significant digits with a moderate exponent is converted in the
 // same pass that finds the end of the field: w <= 2^53 and 10^|k| <= 10^22 are exact doubles,
 // so one IEEE multiplication or division gives the correctly rounded w * 10^k (Clinger 1990,
-// "How to read floating point numbers accurately", PLDI). Numbers of 16-19 significant digits
-// (the 17 digits the writer uses) take the same step in 64-bit extended precision where the
-// machine has it (extended_product below). Every other number goes to std::from_chars, so
-// the result is always the double std::from_chars gives.
+// "How to read floating point numbers accurately", PLDI). Other numbers of up to 19
+// significant digits with |k| <= 30 (among them the 17 digits the writer uses) are converted
+// by a 64 x 128-bit product with a truncated power of five (eisel_lemire below), which knows
+// when its result could be off and then declines. Every other number goes to
+// std::from_chars, so the result is always the double std::from_chars gives.
 
 bool is_digit(char c) {
   return static_cast<unsigned char>(c - '0') < 10;
@@ -211,61 +214,122 @@ bool exact_product(std::uint64_t w, int k, bool negative, double& out) {
 #endif
 }
 
-// Extended-precision step for 16-19 significant digits (w < 10^19 < 2^64, |k| <= 27), where
-// `long double` has a 64-bit significand (x87 extended format: x86 and x86-64 with GCC or
-// Clang). Why it rounds correctly (a double rounding that cannot go wrong):
-//  - w (< 2^64, also after moving powers of ten from 10^k into it when k > 27) and 10^|k|
-//    (5^27 < 2^64) are exact 64-bit-significand numbers, so v = w * 10^k (or
-//    w / 10^-k) is one correctly rounded operation: v = round64(t), t the exact value.
-//  - round64 is monotone and every double midpoint (53 + 1 bits) is a 64-bit number M. If
-//    t < M then v <= M, and t > M gives v >= M; so when v is no midpoint, v and t lie on the
-//    same side of every midpoint (between the same two) and round to the same double. When v
-//    is a midpoint, t may lie on either side (or on it): std::from_chars decides.
-//  - The results lie in [1e-27, 1e46], so they are normal doubles (53-bit significands).
-// v is a midpoint exactly when v != d = double(v) and d + 2 (v - d) is the neighbouring
-// double (both operations exact in 64 bits: v - d is a multiple of v's last place and smaller
-// than d's spacing), which needs no knowledge of the memory layout of long double.
-// The argument needs the x87 precision control at 64 bits and rounding to nearest (the
-// defaults on Linux); both are checked once at run time, otherwise std::from_chars is used.
+// Correctly rounded w * 10^k for any w < 2^64 and |k| <= max_table_power (Eisel-Lemire;
+// Lemire 2021, "Number parsing at a gigabyte per second", Software: Practice and Experience
+// 51(8)), used where exact_product does not apply: the 16-19 digits `radmode make` writes.
+//
+// 5^k is held as a 128-bit number T = 5^k 2^s scaled into [2^127, 2^128): exact for k >= 0
+// (5^30 < 2^70), truncated for k < 0. With w shifted left so that its top bit is set
+// (w' = w 2^z), the 192-bit product P = w' T is the exact product when k >= 0 and otherwise
+// lies below it by less than w' < 2^64 units of its lowest bit. The double is the top 53 bits
+// of the product rounded to nearest by the 54th (the round bit) and the bits below it (the
+// rest). Since the exact product is in [P, P + 2^64), the rounding read off P is the exact
+// one unless
+//  - the rest of P lies within 2^64 of the next round-bit step: bits of the high word below
+//    the round bit all ones and the middle word all ones (a carry could reach the round bit),
+//  - or the round bit is 1 and the rest of P is zero: for k >= 0 this is an exact tie (ties
+//    go to the even significand); for k < 0 the exact value is a little above P, which we
+//    leave to std::from_chars as well.
+// Both cases return false (std::from_chars decides). The result is a normal double for every
+// w and |k| <= max_table_power (1e-30 <= w 10^k < 2^64 1e30), checked anyway.
+#ifdef __SIZEOF_INT128__
+__extension__ typedef unsigned __int128 u128;
 
-constexpr bool long_double_is_extended =
-    std::numeric_limits<long double>::radix == 2 && std::numeric_limits<long double>::digits == 64;
-constexpr int max_extended_power = 27; // 10^27 = 5^27 * 2^27, 5^27 < 2^64
+constexpr int max_table_power = 30;
 
-/// True when long double arithmetic carries 64 bits and rounds to nearest (ties to even):
-/// 1 + 2^-63 is kept, 1 + 2^-64 (a tie) goes to 1, 1 + 3 * 2^-65 goes up to 1 + 2^-63.
-bool extended_rounding_usable() {
-  if (!long_double_is_extended) return false;
-  volatile long double one = 1.0L, ulp = 0x1p-63L, half = 0x1p-64L, three_quarters = 0x3p-65L;
-  return one + ulp != one && one + half == one && one + three_quarters == one + ulp;
+/// 5^k scaled into [2^127, 2^128) and the power of two that scales it: T = 5^k 2^shift.
+struct PowerOfFive {
+  std::uint64_t high = 0, low = 0;
+  int shift = 0;
+};
+
+constexpr int bit_length(u128 x) {
+  int n = 0;
+  for (; x != 0; x >>= 1) ++n;
+  return n;
 }
 
-/// w * 10^k correctly rounded to double via one 64-bit-significand operation (see above);
-/// false when the step does not apply or the result would need std::from_chars.
-bool extended_product(std::uint64_t w, int k, bool negative, double& out) {
-  static constexpr long double pow10[max_extended_power + 1] = {
-      1e0L,  1e1L,  1e2L,  1e3L,  1e4L,  1e5L,  1e6L,  1e7L,  1e8L,  1e9L,
-      1e10L, 1e11L, 1e12L, 1e13L, 1e14L, 1e15L, 1e16L, 1e17L, 1e18L, 1e19L,
-      1e20L, 1e21L, 1e22L, 1e23L, 1e24L, 1e25L, 1e26L, 1e27L};
-  static const bool usable = extended_rounding_usable();
-  if (!usable || k < -max_extended_power) return false;
-  for (; k > max_extended_power; --k) {
-    if (w > std::numeric_limits<std::uint64_t>::max() / 10) return false;
-    w *= 10;
+/// Generates the table: 5^k exactly for k >= 0; for k < 0 the first 128 bits of the binary
+/// expansion of 1 / 5^-k (long division, bit by bit), i.e. floor(2^shift / 5^-k).
+struct PowersOfFive {
+  PowerOfFive entry[2 * max_table_power + 1] = {};
+  constexpr PowersOfFive() {
+    for (int k = -max_table_power; k <= max_table_power; ++k) {
+      u128 five_k = 1;
+      for (int i = 0; i < (k < 0 ? -k : k); ++i) five_k *= 5;
+      u128 t = 0;
+      int shift = 0;
+      if (k >= 0) {
+        shift = 128 - bit_length(five_k);
+        t = five_k << shift;
+      } else {
+        // Quotient bits of 2^j / 5^-k for j = 0, 1, ... until 128 bits from the first one.
+        u128 remainder = 1;
+        int bits = 0;
+        while (bits < 128) {
+          const bool one = remainder >= five_k;
+          if (one) remainder -= five_k;
+          if (bits > 0 || one) {
+            t = (t << 1) | u128{one};
+            ++bits;
+          }
+          remainder <<= 1;
+          ++shift;
+        }
+        shift -= 1; // the last quotient bit has weight 2^-(shift - 1)
+      }
+      PowerOfFive& e = entry[k + max_table_power];
+      e.high = static_cast<std::uint64_t>(t >> 64);
+      e.low = static_cast<std::uint64_t>(t);
+      e.shift = shift;
+    }
   }
-  const long double x = static_cast<long double>(w);
-  const long double v = k < 0 ? x / pow10[-k] : x * pow10[k];
-  const double d = static_cast<double>(v);
-  const long double d_ext = static_cast<long double>(d);
-  const long double delta = v - d_ext;
-  if (delta != 0) {
-    const long double reflected = d_ext + 2 * delta;
-    if (static_cast<long double>(static_cast<double>(reflected)) == reflected)
-      return false; // v is a midpoint
+};
+constexpr PowersOfFive powers_of_five;
+
+bool eisel_lemire(std::uint64_t w, int k, bool negative, double& out) {
+  if (k < -max_table_power || k > max_table_power || w == 0) return false;
+  const PowerOfFive& t = powers_of_five.entry[k + max_table_power];
+  const int z = __builtin_clzll(w);
+  w <<= z;
+  const u128 upper = u128{w} * t.high; // bits 64..191 of P
+  const u128 lower = u128{w} * t.low;  // bits 0..127 of P
+  const u128 middle_sum = (upper & ~std::uint64_t{0}) + (lower >> 64);
+  const std::uint64_t low = static_cast<std::uint64_t>(lower);
+  const std::uint64_t middle = static_cast<std::uint64_t>(middle_sum);
+  const std::uint64_t high = static_cast<std::uint64_t>(upper >> 64) +
+                             static_cast<std::uint64_t>(middle_sum >> 64);
+  // P < 2^192 has its top bit at 191 or 190; keep 54 bits (53 + the round bit).
+  const int top = static_cast<int>(high >> 63);
+  const int rest_bits = 9 + top;
+  const std::uint64_t rest_mask = (std::uint64_t{1} << rest_bits) - 1;
+  const std::uint64_t rest_high = high & rest_mask;
+  if (rest_high == rest_mask && middle == ~std::uint64_t{0}) return false;
+  std::uint64_t m = high >> rest_bits; // in [2^53, 2^54)
+  if ((rest_high | middle | low) == 0 && (m & 1) != 0) { // (the rare test first: no guess)
+    if (k < 0) return false;
+    if ((m & 2) == 0) m -= 1; // a tie: down to the even significand
   }
-  out = negative ? -d : d;
+  m = (m + 1) >> 1; // rounded to 53 bits; may carry to 2^53
+  // w 10^k = P 2^(k - z - shift); P ~ m 2^(128 + rest_bits + 1).
+  int exponent = k - z - t.shift + 128 + rest_bits + 1 + 52; // of the leading bit
+  if (m == std::uint64_t{1} << 53) {
+    m >>= 1;
+    ++exponent;
+  }
+  const int biased = exponent + 1023;
+  if (biased <= 0 || biased >= 2047) return false;
+  const std::uint64_t bits = (std::uint64_t{negative} << 63) |
+                             (static_cast<std::uint64_t>(biased) << 52) |
+                             (m & ((std::uint64_t{1} << 52) - 1));
+  std::memcpy(&out, &bits, sizeof out);
   return true;
 }
+#else
+bool eisel_lemire(std::uint64_t, int, bool, double&) {
+  return false; // no 128-bit multiplication: std::from_chars converts
+}
+#endif
 
 enum class Scan {
   converted, ///< `out` holds the value
@@ -311,7 +375,7 @@ Scan scan_number(const char* p, const char* end, const char*& stop, double& out)
     stop = p;
   }
   if (digits <= max_digits &&
-      (exact_product(w, k, negative, out) || extended_product(w, k, negative, out)))
+      (exact_product(w, k, negative, out) || eisel_lemire(w, k, negative, out)))
     return Scan::converted;
   return plain;
 }
@@ -859,24 +923,43 @@ StellarModel parse_model(std::string_view text, const std::string& source_name,
 StellarModel read_model(const std::string& path, const ReadOptions& options) {
   Location loc;
   loc.file = path;
-  std::FILE* f = std::fopen(path.c_str(), "rb");
-  if (!f) throw InputError(ErrorKind::io, loc, std::string("cannot open: ") + std::strerror(errno));
-  std::unique_ptr<std::FILE, int (*)(std::FILE*)> guard(f, &std::fclose);
+  const auto failure = [&loc](const char* what) {
+    return InputError(ErrorKind::io, loc, std::string(what) + std::strerror(errno));
+  };
+  int fd = -1;
+  do
+    fd = ::open(path.c_str(), O_RDONLY | O_CLOEXEC);
+  while (fd < 0 && errno == EINTR);
+  if (fd < 0) throw failure("cannot open: ");
+  const std::unique_ptr<int, void (*)(int*)> guard(&fd, [](int* f) { ::close(*f); });
   struct stat st {};
-  if (::fstat(::fileno(f), &st) != 0)
-    throw InputError(ErrorKind::io, loc, std::string("cannot read: ") + std::strerror(errno));
+  if (::fstat(fd, &st) != 0) throw failure("cannot read: ");
   if (S_ISDIR(st.st_mode)) throw InputError(ErrorKind::io, loc, "cannot read: is a directory");
-  std::string text;
-  if (S_ISREG(st.st_mode) && st.st_size > 0) text.reserve(static_cast<std::size_t>(st.st_size));
-  char buf[1 << 16];
+  // The text goes straight into one buffer sized from fstat (one byte more, so that the read
+  // which finds the end need not grow it); it grows when the file is longer than that (it
+  // grew meanwhile, or is no regular file). Not zero-filled; no mmap (a file truncated while
+  // mapped would end the program with SIGBUS).
+  std::size_t capacity = S_ISREG(st.st_mode) && st.st_size > 0
+                             ? static_cast<std::size_t>(st.st_size) + 1
+                             : std::size_t{1} << 16;
+  std::unique_ptr<char[]> text(new char[capacity]);
+  std::size_t size = 0;
   while (true) {
-    const std::size_t n = std::fread(buf, 1, sizeof buf, f);
-    text.append(buf, n);
-    if (n < sizeof buf) break;
+    if (size == capacity) {
+      std::unique_ptr<char[]> larger(new char[2 * capacity]);
+      std::memcpy(larger.get(), text.get(), size);
+      text = std::move(larger);
+      capacity *= 2;
+    }
+    const ssize_t n = ::read(fd, text.get() + size, capacity - size);
+    if (n == 0) break;
+    if (n < 0) {
+      if (errno == EINTR) continue;
+      throw failure("cannot read: ");
+    }
+    size += static_cast<std::size_t>(n);
   }
-  if (std::ferror(f))
-    throw InputError(ErrorKind::io, loc, std::string("cannot read: ") + std::strerror(errno));
-  return parse_model(text, path, options);
+  return parse_model(std::string_view(text.get(), size), path, options);
 }
 
 } // namespace radmode

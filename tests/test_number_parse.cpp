@@ -266,6 +266,38 @@ TEST_CASE("16-19 significant digits: midpoints between doubles and numbers just 
   CHECK(strtod_mismatches == 0);
 }
 
+TEST_CASE("1-19 significant digits with powers of ten at and beyond the ends of the reader's table") {
+  // The reader converts w 10^k with w < 2^64 and |k| <= 30 by a 64 x 128-bit product (src/
+  // model_read.cpp); these cases sit at its edges: k = +-29..+-32 (the last table entries and
+  // the first numbers past them), w >= 2^63, w = 10^19 - 1, w = 2^64 / 10, short w that the
+  // exact double path refuses (k > 22 with w 10^(k-22) > 2^53, or k < -22), and values near
+  // the largest and smallest normal doubles (past the table: the general path).
+  std::mt19937_64 rng(2030);
+  std::vector<std::string> tokens;
+  for (int k = -32; k <= 32; ++k) {
+    const std::string e = "e" + std::to_string(k);
+    for (const char* w : {"1", "5", "9", "123456789012345", "9007199254740993", "9223372036854775807",
+                          "9223372036854775808", "9223372036854775809", "9999999999999999999",
+                          "1844674407370955161", "1000000000000000001", "4503599627370497"})
+      tokens.push_back(std::string(w) + e);
+    for (int i = 0; i < 300; ++i) {
+      const int n = 1 + static_cast<int>(rng() % 19);
+      std::string w(1, static_cast<char>('1' + rng() % 9));
+      for (int j = 1; j < n; ++j) w += static_cast<char>('0' + rng() % 10);
+      tokens.push_back(w + e);
+      tokens.push_back(write_decimal(w, k, rng() % 2 == 0, rng));
+    }
+  }
+  // (Subnormal results are left out: std::from_chars reports them out of range.)
+  for (const char* t : {"1.7976931348623157e308", "1.7976931348623158e308", "2.2250738585072014e-308",
+                        "2.2250738585072017e-308", "-0.0000000000000000000", "0e30", "0e-31"})
+    tokens.emplace_back(t);
+  Comparison cmp;
+  for (const auto& token : tokens) cmp.check(token);
+  CHECK(cmp.checked == 65 * (12 + 600) + 7);
+  CHECK(cmp.mismatches == 0);
+}
+
 TEST_CASE("16-19 significant digits in table rows: the reader's own pass agrees with from_chars") {
   // The same conversion inside parse_model (which does not go through parse_number): random
   // 16-19-digit numbers in an extra column and in P, fields separated by blanks and commas.

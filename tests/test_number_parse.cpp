@@ -1,6 +1,7 @@
 // Number conversion of the table reader (parse_number in model_io.hpp and the reader's own
 // scanning pass) for numbers of 16 to 19 significant digits -- the 17 digits `radmode make`
-// writes -- which the reader converts in 64-bit extended precision where the machine has it.
+// writes -- which the reader converts by a 64 x 128-bit product with a truncated power of
+// five (Eisel-Lemire) where the compiler has a 128-bit integer type.
 //
 // Reference: std::from_chars (C++17 [charconv.from.chars]: the value strtod gives in the "C"
 // locale; both are correctly rounded in GCC's libstdc++ and glibc), compared bit for bit.

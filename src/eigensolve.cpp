@@ -728,23 +728,42 @@ PencilSpectrum solve_pencil(const TridiagonalPencil& p, const PencilRequest& req
 
 namespace {
 
-/// max |x_i| (0 for an empty x; NaN entries are skipped, as std::max skips them). Four
-/// running maxima: one alone is a chain of dependent max operations, several times slower.
-double max_abs(const std::vector<double>& x) {
-  double m[4] = {0.0, 0.0, 0.0, 0.0};
+/// max |x_i| and min |x_i| (0 for an empty x; NaN entries are skipped, as std::max and
+/// std::min skip them). Four running extrema: one alone is a chain of dependent operations,
+/// several times slower.
+struct AbsRange {
+  double max = 0, min = 0;
+};
+AbsRange abs_range(const std::vector<double>& x) {
   const std::size_t n = x.size(), quads = n / 4 * 4;
+  if (n == 0) return {};
+  double hi[4] = {0.0, 0.0, 0.0, 0.0};
+  const double first = std::abs(x[0]);
+  double lo[4] = {first, first, first, first};
   for (std::size_t i = 0; i < quads; i += 4)
-    for (std::size_t k = 0; k < 4; ++k) m[k] = std::max(m[k], std::abs(x[i + k]));
-  for (std::size_t i = quads; i < n; ++i) m[0] = std::max(m[0], std::abs(x[i]));
-  return std::max(std::max(m[0], m[1]), std::max(m[2], m[3]));
+    for (std::size_t k = 0; k < 4; ++k) {
+      hi[k] = std::max(hi[k], std::abs(x[i + k]));
+      lo[k] = std::min(lo[k], std::abs(x[i + k]));
+    }
+  for (std::size_t i = quads; i < n; ++i) {
+    hi[0] = std::max(hi[0], std::abs(x[i]));
+    lo[0] = std::min(lo[0], std::abs(x[i]));
+  }
+  return {std::max(std::max(hi[0], hi[1]), std::max(hi[2], hi[3])),
+          std::min(std::min(lo[0], lo[1]), std::min(lo[2], lo[3]))};
 }
 
 /// Sign changes of xi, ignoring entries below 1e-9 max|xi| (the exact zero at a rigid inner
-/// boundary and round-off next to it).
-int count_nodes(const std::vector<double>& xi) {
-  const double big = max_abs(xi);
-  const double threshold = 1e-9 * big;
-  int nodes = 0, sign = 0;
+/// boundary and round-off next to it). `range`: abs_range(xi).
+int count_nodes(const std::vector<double>& xi, const AbsRange& range) {
+  const double threshold = 1e-9 * range.max;
+  int nodes = 0;
+  if (range.min > threshold) {
+    // No entry to skip (the common case): the sign changes of neighbours, without branches.
+    for (std::size_t i = 0; i + 1 < xi.size(); ++i) nodes += (xi[i] < 0) != (xi[i + 1] < 0);
+    return nodes;
+  }
+  int sign = 0;
   for (const double v : xi) {
     if (std::abs(v) <= threshold) continue;
     const int sv = v > 0 ? 1 : -1;
@@ -754,34 +773,33 @@ int count_nodes(const std::vector<double>& xi) {
   return nodes;
 }
 
-/// x^T A x / x^T B x for tridiagonal A, B, and the round-off scale of x^T A x:
-/// sqrt(sum_i (|x_i| sum_j |A_ij x_j|)^2) (the standard deviation of the sum of the products
-/// A_ij x_i x_j if each carries an independent relative rounding error of order one).
-struct Quotient {
-  double value, roundoff_scale, denominator;
-};
-Quotient quotient(const std::vector<double>& ad, const std::vector<double>& ao,
-                  const std::vector<double>& bd, const std::vector<double>& bo,
-                  const std::vector<double>& x) {
-  double num = 0, scale2 = 0, den = 0;
+/// The round-off scale of x^T A x for tridiagonal A (diagonal ad, off-diagonal ao), per unit
+/// x^T B x = den: sqrt(sum_i (|x_i| sum_j |A_ij x_j|)^2) / den (the standard deviation of the
+/// sum of the products A_ij x_i x_j if each carries an independent relative rounding error of
+/// order one). Four running sums (independent additions).
+double roundoff_scale(const std::vector<double>& ad, const std::vector<double>& ao,
+                      const std::vector<double>& x, double den) {
   const std::size_t n = x.size();
-  for (std::size_t j = 0; j < n; ++j) {
-    double ax = ad[j] * x[j], bx = bd[j] * x[j], abs_ax = std::abs(ad[j] * x[j]);
-    if (j > 0) {
-      ax += ao[j - 1] * x[j - 1];
-      bx += bo[j - 1] * x[j - 1];
-      abs_ax += std::abs(ao[j - 1] * x[j - 1]);
+  if (n == 0) return 0.0;
+  auto term = [&](std::size_t j) {
+    double abs_ax = std::abs(ad[j] * x[j]);
+    if (j > 0) abs_ax += std::abs(ao[j - 1] * x[j - 1]);
+    if (j + 1 < n) abs_ax += std::abs(ao[j] * x[j + 1]);
+    const double t = x[j] * abs_ax;
+    return t * t;
+  };
+  double s[4] = {term(0), 0.0, 0.0, 0.0};
+  std::size_t j = 1;
+  // Inner rows (both neighbours exist), four at a time.
+  for (; j + 4 < n; j += 4)
+    for (std::size_t k = 0; k < 4; ++k) {
+      const std::size_t i = j + k;
+      const double t = x[i] * (std::abs(ad[i] * x[i]) + std::abs(ao[i - 1] * x[i - 1]) +
+                               std::abs(ao[i] * x[i + 1]));
+      s[k] += t * t;
     }
-    if (j + 1 < n) {
-      ax += ao[j] * x[j + 1];
-      bx += bo[j] * x[j + 1];
-      abs_ax += std::abs(ao[j] * x[j + 1]);
-    }
-    num += x[j] * ax;
-    den += x[j] * bx;
-    scale2 += (x[j] * abs_ax) * (x[j] * abs_ax);
-  }
-  return {num / den, std::sqrt(scale2) / den, den};
+  for (; j < n; ++j) s[0] += term(j);
+  return std::sqrt((s[0] + s[1]) + (s[2] + s[3])) / den;
 }
 
 void add_flag(ModeSolution& m, const std::string& text) {
@@ -1043,10 +1061,11 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
 
     // Error estimate, pencil units: discretization (Richardson), interpolation between table
     // rows, residual and round-off.
-    const Quotient qf = quotient(pf.k_diag, pf.k_off, pf.m_diag, pf.m_off, e.x);
     // Round-off: ten standard deviations of independent rounding errors (statistical; the
-    // worst case grows like N^2 and is orders of magnitude above what is observed).
-    double err = 2 * e.residual * std::abs(e.lambda) + 10 * eps * qf.roundoff_scale;
+    // worst case grows like N^2 and is orders of magnitude above what is observed). (x is
+    // normalized to x^T M x = 1.)
+    double err = 2 * e.residual * std::abs(e.lambda) +
+                 10 * eps * roundoff_scale(pf.k_diag, pf.k_off, e.x, 1.0);
     if (options.richardson) {
       const PencilEigenpair* partner = nullptr;
       if (sc)
@@ -1076,15 +1095,14 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
     // xi at every node (0 at a rigid inner node), normalized to xi(R) = 1.
     m.xi.assign(out.node_r.size(), 0.0);
     for (std::size_t j = 0; j < e.x.size(); ++j) m.xi[pf.node[j]] = e.x[j];
-    const double big = max_abs(m.xi);
+    AbsRange range = abs_range(m.xi);
     const double surface = m.xi.back();
-    if (std::abs(surface) > 1e-8 * big) {
-      for (double& v : m.xi) v /= surface;
-    } else {
-      for (double& v : m.xi) v /= big;
-      add_flag(m, "xi(R) is close to zero: normalized to max |xi| = 1 instead");
-    }
-    m.nodes = count_nodes(m.xi);
+    const double by = std::abs(surface) > 1e-8 * range.max ? surface : range.max;
+    if (by != surface) add_flag(m, "xi(R) is close to zero: normalized to max |xi| = 1 instead");
+    for (double& v : m.xi) v /= by;
+    range.max /= std::abs(by);
+    range.min /= std::abs(by);
+    m.nodes = count_nodes(m.xi, range);
     m.order_agrees = m.nodes == m.order;
 
     if (!m.order_agrees)

@@ -20,6 +20,10 @@
 #include <sstream>
 #include <thread>
 
+#if defined(__GLIBC__)
+#include <malloc.h>
+#endif
+
 namespace radmode {
 
 namespace {
@@ -305,6 +309,13 @@ TrackRun run_rows(const std::vector<std::string>& paths, const std::vector<std::
 }
 
 // ---- shards, lists ----------------------------------------------------------------------
+
+void keep_freed_memory() noexcept {
+#if defined(__GLIBC__)
+  mallopt(M_MMAP_THRESHOLD, 32 << 20);
+  mallopt(M_TRIM_THRESHOLD, 64 << 20);
+#endif
+}
 
 std::vector<std::size_t> shard_indices(std::size_t total, int shard, int shards) {
   if (shards < 1 || shard < 0 || shard >= shards)

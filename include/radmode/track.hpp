@@ -117,6 +117,15 @@ TrackRun run_track(const std::vector<std::string>& paths, const std::vector<std:
                    const ModelLoader& load, const TrackOptions& options,
                    const TrackProgress& progress = {}, const std::atomic<bool>* stop = nullptr);
 
+/// Allocator setting for a batch of models in one process: memory freed after a model is kept
+/// for the next one instead of being returned to the system and faulted in again (with glibc:
+/// mallopt M_MMAP_THRESHOLD 32 MiB, M_TRIM_THRESHOLD 64 MiB, i.e. up to 64 MiB of free memory
+/// kept per allocator arena; no effect with other C libraries). Process-wide and permanent;
+/// run_track does not call it: `radmode track` and the track benchmark do.
+/// (tests/bench/bench_track: page faults per 2,000-point model fell from ~28 to ~2 on one
+/// thread; threads other than the main one were not affected.)
+void keep_freed_memory() noexcept;
+
 /// The deterministic slice of an input list of `total` entries taken by shard `shard` of
 /// `shards` (0-based): every index i with i mod shards == shard, in increasing order.
 std::vector<std::size_t> shard_indices(std::size_t total, int shard, int shards);

@@ -278,6 +278,7 @@ int run_track_command(const TrackCliOptions& o, bool jobs_given) {
   opts.jobs = o.jobs;
   opts.validate();
   if (!o.shard.empty()) parse_shard(o.shard); // report a bad --shard before any work
+  keep_freed_memory();
 #ifdef RADMODE_WITH_MPI
   int initialized = 0;
   MPI_Initialized(&initialized);

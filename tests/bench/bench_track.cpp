@@ -59,6 +59,7 @@ int main(int argc, char** argv) {
     paths.push_back(path);
   }
 
+  radmode::keep_freed_memory(); // as `radmode track` does
   const radmode::ModelLoader load = [](const std::string& p) { return radmode::read_model(p); };
   const int all = static_cast<int>(std::max(1u, std::thread::hardware_concurrency()));
   std::printf("bench_track: %zu models, %zu points, %d modes each\n", models, points, count);

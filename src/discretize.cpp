@@ -199,17 +199,32 @@ std::vector<std::size_t> every_other_node(const WeakForm& form, const std::vecto
 }
 
 std::vector<std::size_t> every_other_node(std::size_t last, const std::vector<bool>& keep) {
+  return every_other_node_keeping(last, flagged_nodes(keep));
+}
+
+std::vector<std::size_t> flagged_nodes(const std::vector<bool>& flags) {
+  std::vector<std::size_t> out;
+  for (std::size_t i = 0; i < flags.size(); ++i)
+    if (flags[i]) out.push_back(i);
+  return out;
+}
+
+std::vector<std::size_t> every_other_node_keeping(std::size_t last,
+                                                  const std::vector<std::size_t>& kept) {
+  for (std::size_t k = 1; k < kept.size(); ++k)
+    if (kept[k] <= kept[k - 1])
+      throw UsageError("every_other_node_keeping: kept nodes must increase strictly");
   // Segments between kept nodes are halved; a segment with an odd number of intervals gets
   // its single-interval element at its inner end (next to the centre the r^4 weights make
   // that element's contribution smallest; at the surface it would hide the error there from
   // the Richardson comparison).
   std::vector<std::size_t> n;
-  n.reserve(last / 2 + 2);
+  n.reserve(last / 2 + 2 + kept.size());
   n.push_back(0);
-  std::size_t a = 0;
+  std::size_t a = 0, next = 0; // kept[next]: the first kept node after a
   while (a < last) {
-    std::size_t b = a + 1;
-    while (b < last && !(b < keep.size() && keep[b])) ++b;
+    while (next < kept.size() && kept[next] <= a) ++next;
+    const std::size_t b = next < kept.size() && kept[next] < last ? kept[next] : last;
     std::size_t i = a;
     if ((b - a) % 2 == 1) n.push_back(++i);
     while (i < b) n.push_back(i += 2);
@@ -220,7 +235,8 @@ std::vector<std::size_t> every_other_node(std::size_t last, const std::vector<bo
 
 std::optional<Structure> every_other_row(const Structure& s) {
   const StellarModel& t = s.table();
-  const std::vector<std::size_t> keep_nodes = every_other_node(s.interval_count(), s.discontinuity());
+  const std::vector<std::size_t> keep_nodes =
+      every_other_node_keeping(s.interval_count(), s.discontinuity_nodes());
   // Rows map to nodes in order: a repeated radius gives two rows on one node. Walk both.
   std::vector<std::size_t> rows;
   rows.reserve(keep_nodes.size() + 16);

@@ -529,7 +529,7 @@ std::vector<double> predict_finer(const std::vector<double>& coarse,
 /// caller then solves pf directly).
 std::optional<std::pair<PencilSpectrum, PencilSpectrum>>
 nested_solve(const TridiagonalPencil& pf, const detail::MeshLevel& coarse,
-             const std::vector<double>& x, const std::vector<bool>& keep, int i0, int i1) {
+             const std::vector<double>& x, const std::vector<std::size_t>& keep, int i0, int i1) {
   const TridiagonalPencil* pc = &coarse.pencil;
   PencilRequest by_index;
   by_index.first = i0;
@@ -1004,7 +1004,7 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
   // Richardson partner mesh: every other node (discontinuities kept), its pencil the Galerkin
   // restriction of the fine one (identical to assembling it, see pencil_block.hpp).
   const std::optional<detail::MeshLevel> coarse =
-      detail::coarsen(fine.nodes, rigid, pf, form.x, s.discontinuity());
+      detail::coarsen(fine.nodes, rigid, pf, form.x, s.discontinuity_nodes());
   const TridiagonalPencil* pc = coarse ? &coarse->pencil : nullptr;
 
   // Nested iteration (nested_solve) when the every-other-node mesh is large enough for the
@@ -1013,7 +1013,7 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
   PencilSpectrum sf;
   bool nested = false;
   if (pc && static_cast<int>(pc->size()) >= 2 * i1 + 20) {
-    if (auto both = nested_solve(pf, *coarse, form.x, s.discontinuity(), i0, i1)) {
+    if (auto both = nested_solve(pf, *coarse, form.x, s.discontinuity_nodes(), i0, i1)) {
       sf = std::move(both->first);
       sc = std::move(both->second);
       nested = true;

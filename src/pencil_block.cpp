@@ -526,10 +526,16 @@ std::vector<RqiStats> rayleigh_iterate(const TridiagonalPencil& p,
 
 std::optional<MeshLevel> coarsen(const std::vector<std::size_t>& fn, bool fix_first,
                                  const TridiagonalPencil& pf, const std::vector<double>& x,
-                                 const std::vector<bool>& keep_base) {
-  std::vector<bool> keep(fn.size(), false);
-  for (std::size_t i = 0; i < fn.size(); ++i) keep[i] = fn[i] < keep_base.size() && keep_base[fn[i]];
-  const std::vector<std::size_t> pos = every_other_node(fn.size() - 1, keep); // in fn
+                                 const std::vector<std::size_t>& kept_base) {
+  // The kept base nodes' positions in fn (increasing, as both lists are).
+  std::vector<std::size_t> kept;
+  auto from = fn.begin();
+  for (const std::size_t k : kept_base) {
+    from = std::lower_bound(from, fn.end(), k);
+    if (from == fn.end()) break;
+    if (*from == k) kept.push_back(static_cast<std::size_t>(from - fn.begin()));
+  }
+  const std::vector<std::size_t> pos = every_other_node_keeping(fn.size() - 1, kept); // in fn
   MeshLevel c;
   c.fix_first = fix_first;
   c.nodes.reserve(pos.size());

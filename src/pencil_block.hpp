@@ -72,17 +72,17 @@ struct MeshLevel {
 };
 
 /// The next coarser level: every other node of `fine.nodes` (keeping its ends and the base
-/// nodes flagged in `keep_base`, see every_other_node), with the Galerkin pencil
+/// nodes listed in `kept_base`, increasing, see every_other_node), with the Galerkin pencil
 /// P^T K P, P^T M P, P the linear interpolation from the coarse to the fine level (x: base
 /// mesh coordinates). For nested linear elements with one shared quadrature this is exactly
 /// the pencil assemble() would build on the coarse mesh, at O(N) cost without re-reading the
 /// quadrature data. nullopt when fewer than 2 coarse unknowns would remain.
 std::optional<MeshLevel> coarsen(const std::vector<std::size_t>& fine_nodes, bool fix_first,
                                  const TridiagonalPencil& fine_pencil, const std::vector<double>& x,
-                                 const std::vector<bool>& keep_base);
+                                 const std::vector<std::size_t>& kept_base);
 inline std::optional<MeshLevel> coarsen(const MeshLevel& fine, const std::vector<double>& x,
-                                        const std::vector<bool>& keep_base) {
-  return coarsen(fine.nodes, fine.fix_first, fine.pencil, x, keep_base);
+                                        const std::vector<std::size_t>& kept_base) {
+  return coarsen(fine.nodes, fine.fix_first, fine.pencil, x, kept_base);
 }
 
 } // namespace radmode::detail

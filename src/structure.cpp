@@ -133,6 +133,7 @@ void Structure::prepare(bool rows_known) {
   m_mid_known.clear();
   m_node_r.clear();
   m_discontinuity.clear();
+  m_discontinuity_nodes.clear();
   m_iv.reserve(n - 1);
   m_mid.reserve(n - 1);
   m_mid_known.reserve(n - 1);
@@ -146,6 +147,7 @@ void Structure::prepare(bool rows_known) {
   const Basis mid = basis(0.5); // constant-folded
   for (std::size_t j = 0; j + 1 < n; ++j) {
     if (r[j + 1] == r[j]) { // repeated radius: no interval, the node is a discontinuity
+      if (!m_discontinuity.back()) m_discontinuity_nodes.push_back(m_node_r.size() - 1);
       m_discontinuity.back() = true;
       continue;
     }

@@ -171,6 +171,7 @@ TEST_CASE("every_other_row equals the structure of the same rows prepared from s
   for (std::size_t j = k + 1; j < m.size(); ++j) m.rho[j] *= 0.5;
   const Structure s(m);
   REQUIRE(s.discontinuity()[k]);
+  CHECK(s.discontinuity_nodes() == flagged_nodes(s.discontinuity()));
   const auto half = every_other_row(s);
   REQUIRE(half.has_value());
   // The same rows, by the documented rule, through the validating constructor.
@@ -191,6 +192,7 @@ TEST_CASE("every_other_row equals the structure of the same rows prepared from s
   const Structure ref(rows);
   REQUIRE(half->node_r() == ref.node_r());
   CHECK(half->discontinuity() == ref.discontinuity());
+  CHECK(half->discontinuity_nodes() == ref.discontinuity_nodes());
   for (std::size_t i = 0; i < ref.interval_count(); ++i)
     for (const double t : {0.0, 0.25, 0.5, 0.9, 1.0}) {
       const StructurePoint a = half->at(i, t), b = ref.at(i, t);
@@ -233,6 +235,13 @@ TEST_CASE("every_other_node keeps the ends and the flagged nodes") {
   keep[3] = false;
   keep[4] = true;
   CHECK(every_other_node(7, keep) == std::vector<std::size_t>{0, 2, 4, 5, 7});
+  // The list form gives the same meshes; kept ends and repeated entries change nothing or
+  // are refused.
+  CHECK(flagged_nodes(keep) == std::vector<std::size_t>{4});
+  CHECK(every_other_node_keeping(7, {4}) == every_other_node(7, keep));
+  CHECK(every_other_node_keeping(7, {0, 3, 7}) == std::vector<std::size_t>{0, 1, 3, 5, 7});
+  CHECK(every_other_node_keeping(9, {2, 5}) == std::vector<std::size_t>{0, 2, 3, 5, 7, 9});
+  CHECK_THROWS_AS(every_other_node_keeping(9, {5, 5}), UsageError);
 }
 
 TEST_CASE("inertia count equals the number of eigenvalues below the shift (dense check)") {

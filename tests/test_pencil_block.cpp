@@ -119,7 +119,7 @@ TEST_CASE("Galerkin coarsening equals assembling the every-other-node mesh") {
       std::vector<bool> keep(f.x.size(), false);
       if (kept) keep[kept] = true;
       const detail::MeshLevel fine{all_nodes(f), rigid, assemble(f, {all_nodes(f), rigid, false})};
-      const std::optional<detail::MeshLevel> made = detail::coarsen(fine, f.x, keep);
+      const std::optional<detail::MeshLevel> made = detail::coarsen(fine, f.x, flagged_nodes(keep));
       REQUIRE(made.has_value());
       const detail::MeshLevel& coarse = *made;
       CHECK(coarse.nodes == every_other_node(f, keep));
@@ -145,7 +145,7 @@ TEST_CASE("Galerkin coarsening equals assembling the every-other-node mesh") {
       std::size_t smallest = coarse.pencil.size();
       for (int depth = 0; level && depth < 20; ++depth) {
         smallest = level->pencil.size();
-        level = detail::coarsen(*level, f.x, keep);
+        level = detail::coarsen(*level, f.x, flagged_nodes(keep));
         if (level && level->pencil.size() == smallest) break;
       }
       CHECK(smallest >= 2);

@@ -144,6 +144,12 @@ std::vector<std::size_t> all_nodes(const WeakForm& form);
 std::vector<std::size_t> every_other_node(const WeakForm& form, const std::vector<bool>& keep = {});
 /// Same rule for a mesh of last + 1 nodes.
 std::vector<std::size_t> every_other_node(std::size_t last, const std::vector<bool>& keep = {});
+/// Same rule with the kept nodes given as a list of node indices, increasing (entries <= 0
+/// or >= last change nothing).
+std::vector<std::size_t> every_other_node_keeping(std::size_t last,
+                                                  const std::vector<std::size_t>& kept);
+/// The indices of the true entries of `flags`, increasing.
+std::vector<std::size_t> flagged_nodes(const std::vector<bool>& flags);
 
 /// Galerkin assembly of the pencil on the selected mesh. O(number of quadrature points).
 /// Throws UsageError for an invalid selection.

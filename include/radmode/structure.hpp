@@ -79,6 +79,10 @@ public:
   /// True where the node is a discontinuity (repeated radius): the two intervals meeting there
   /// use different rows. Same size as node_r().
   const std::vector<bool>& discontinuity() const noexcept { return m_discontinuity; }
+  /// The nodes flagged in discontinuity(), increasing.
+  const std::vector<std::size_t>& discontinuity_nodes() const noexcept {
+    return m_discontinuity_nodes;
+  }
 
   /// Quantities inside interval i at local coordinate t in [0, 1] (r = r_i + t (r_{i+1} - r_i)).
   /// t = 0 and t = 1 reproduce that interval's own table rows exactly.
@@ -212,6 +216,7 @@ private:
   std::vector<unsigned char> m_mid_known;
   std::vector<double> m_node_r;
   std::vector<bool> m_discontinuity;
+  std::vector<std::size_t> m_discontinuity_nodes;
   double m_mass = 0, m_surface_P = 0;
   bool m_extended = false, m_has_nabla_ad = false;
   InnerCondition m_inner = InnerCondition::centre;

@@ -267,7 +267,6 @@ struct Engine {
       }
       if (std::isfinite(out[i].lambda)) lambda_ref = std::max(lambda_ref, std::abs(out[i].lambda));
     }
-    std::vector<double> shifts;
     for (std::size_t i = 0; i < out.size(); ++i) {
       PencilEigenpair& e = out[i];
       if (measured(i)) {
@@ -281,22 +280,46 @@ struct Engine {
         const double norm = 1.0 / std::sqrt(xmx[i]);
         for (double& v : e.x) v *= norm;
       }
-      if (!std::isfinite(e.lambda)) continue;
-      const double margin = count_margin(e.lambda, scale);
-      shifts.push_back(e.lambda - margin);
-      shifts.push_back(e.lambda + margin);
     }
-    if (!with_index) return out;
+    if (with_index) set_indices(out);
+    return out;
+  }
+
+  /// index (inertia just below lambda) and multiplicity (eigenvalues in an interval around
+  /// lambda) of each pair with a finite lambda. The pairs are taken in order of lambda; the
+  /// interval of a pair reaches from a point below lambda to one above it: lambda -+ its
+  /// count_margin at the ends of the set, and between two neighbours whose margins do not
+  /// overlap, one point shared by both (their midpoint: so n separated pairs need n + 1 counts,
+  /// not 2n). A shared point only widens the intervals: a multiplicity of 1 still means
+  /// exactly one eigenvalue around lambda, and the residual test (finalize) places an
+  /// eigenvalue within the residual's bound of lambda, far inside the interval.
+  void set_indices(std::vector<PencilEigenpair>& out) {
+    std::vector<std::size_t> order;
+    for (std::size_t i = 0; i < out.size(); ++i)
+      if (std::isfinite(out[i].lambda)) order.push_back(i);
+    std::sort(order.begin(), order.end(),
+              [&](std::size_t a, std::size_t b) { return out[a].lambda < out[b].lambda; });
+    std::vector<double> shifts;
+    std::vector<std::size_t> below(order.size()), above(order.size()); // into shifts
+    for (std::size_t k = 0; k < order.size(); ++k) {
+      const double lambda = out[order[k]].lambda, margin = count_margin(lambda, scale);
+      const bool shared = k > 0 && shifts.back() < lambda - margin;
+      if (shared) {
+        shifts.back() = 0.5 * (out[order[k - 1]].lambda + lambda);
+      } else {
+        shifts.push_back(lambda - margin);
+      }
+      below[k] = shifts.size() - 1;
+      shifts.push_back(lambda + margin);
+      above[k] = shifts.size() - 1;
+    }
     const std::vector<int> c = detail::inertia_below_many(p, shifts);
     counts += static_cast<int>(shifts.size());
-    std::size_t k = 0;
-    for (auto& e : out) {
-      if (!std::isfinite(e.lambda)) continue;
-      e.index = c[k];
-      e.multiplicity = c[k + 1] - c[k];
-      k += 2;
+    for (std::size_t k = 0; k < order.size(); ++k) {
+      PencilEigenpair& e = out[order[k]];
+      e.index = c[below[k]];
+      e.multiplicity = c[above[k]] - c[below[k]];
     }
-    return out;
   }
 
   /// (K x)_j and (M x)_j.

@@ -14,6 +14,7 @@
 #include <cstdio>
 #include <cstdlib>
 #include <cstring>
+#include <limits>
 #include <string>
 #include <vector>
 
@@ -684,4 +685,87 @@ TEST_CASE("table rows: long lines, missing final newline, junk after a number") 
     const auto e = parse_error(join(lines));
     CHECK(contains(e.what(), "bad.txt:10: expected 5 fields as in the header (line 2), found 8"));
   }
+}
+
+TEST_CASE("validate_model: every defect at every position is refused, valid edge cases pass") {
+  // The rules of model.hpp (validate_model), applied to a small valid model with an optional
+  // column, one defect at a time at the first, second, a middle, the second-last and the last
+  // point. validate_model checks all rows in one quick pass first and looks for the offending
+  // point only when that pass fails: this makes sure the quick pass misses nothing.
+  const std::size_t n = 12;
+  StellarModel good;
+  for (std::size_t i = 0; i < n; ++i) {
+    const double x = double(i) / double(n - 1);
+    good.r.push_back(7e10 * x);
+    good.m.push_back(2e33 * x * x * x);
+    good.P.push_back(1e17 * (1.0 - x * x));          // 0 at the surface
+    good.rho.push_back(i + 1 == n ? 0.0 : 1.4);      // 0 at the zero-pressure surface
+    good.gamma1.push_back(5.0 / 3.0);
+    good.T.push_back(1e7 * (1.0 - x) + 1e3);
+  }
+  good.source = "valid.txt";
+  CHECK_NOTHROW(validate_model(good));
+  const double nan = std::numeric_limits<double>::quiet_NaN();
+  const double inf = std::numeric_limits<double>::infinity();
+  using Column = std::vector<double> StellarModel::*;
+  const std::pair<const char*, Column> columns[] = {
+      {"r", &StellarModel::r},     {"m", &StellarModel::m},           {"P", &StellarModel::P},
+      {"rho", &StellarModel::rho}, {"Gamma1", &StellarModel::gamma1}, {"T", &StellarModel::T}};
+  for (const std::size_t i : {std::size_t{0}, std::size_t{1}, n / 2, n - 2, n - 1})
+    for (const auto& [name, column] : columns)
+      for (const double bad : {nan, inf, -inf}) {
+        StellarModel m = good;
+        (m.*column)[i] = bad;
+        INFO("column " << name << ", point " << i << ", value " << bad);
+        CHECK_THROWS_AS(validate_model(m), InputError);
+      }
+  for (const std::size_t i : {std::size_t{0}, std::size_t{1}, n / 2, n - 2, n - 1}) {
+    INFO("point " << i);
+    StellarModel m = good;
+    m.P[i] = -1.0;
+    CHECK_THROWS_AS(validate_model(m), InputError);
+    m = good;
+    m.gamma1[i] = 0.0;
+    CHECK_THROWS_AS(validate_model(m), InputError);
+    m = good;
+    m.m[i] = -1.0;
+    CHECK_THROWS_AS(validate_model(m), InputError);
+    m = good;
+    m.rho[i] = -1.0;
+    CHECK_THROWS_AS(validate_model(m), InputError);
+    if (i + 1 < n) { // rho = 0 is allowed only at the surface point, and there only with P = 0
+      m = good;
+      m.rho[i] = 0.0;
+      CHECK_THROWS_AS(validate_model(m), InputError);
+    }
+    if (i > 0) { // r and m must not decrease
+      m = good;
+      m.r[i] = m.r[i - 1] * 0.999 - 1.0;
+      CHECK_THROWS_AS(validate_model(m), InputError);
+      m = good;
+      m.m[i] = m.m[i - 1] * 0.999 - 1.0;
+      CHECK_THROWS_AS(validate_model(m), InputError);
+    }
+    if (i > 0 && i + 1 < n) { // P = 0 inside is allowed (P >= 0)
+      m = good;
+      m.P[i] = 0.0;
+      CHECK_NOTHROW(validate_model(m));
+    }
+  }
+  StellarModel m = good;
+  m.P.back() = 1.0; // rho = 0 at the surface needs P = 0 there
+  CHECK_THROWS_AS(validate_model(m), InputError);
+  m = good;
+  m.r[6] = m.r[5]; // a discontinuity: two rows at one radius is fine, three are not
+  CHECK_NOTHROW(validate_model(m));
+  m.r[7] = m.r[5];
+  m.m[7] = m.m[6];
+  CHECK_THROWS_AS(validate_model(m), InputError);
+  m = good;
+  m.r[0] = -1.0;
+  CHECK_THROWS_AS(validate_model(m), InputError);
+  m = good;
+  m.m.back() = 0.0; // total mass must be positive
+  for (double& v : m.m) v = 0.0;
+  CHECK_THROWS_AS(validate_model(m), InputError);
 }

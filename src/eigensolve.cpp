@@ -292,7 +292,8 @@ struct Engine {
   /// overlap, one point shared by both (their midpoint: so n separated pairs need n + 1 counts,
   /// not 2n). A shared point only widens the intervals: a multiplicity of 1 still means
   /// exactly one eigenvalue around lambda, and the residual test (finalize) places an
-  /// eigenvalue within the residual's bound of lambda, far inside the interval.
+  /// eigenvalue within the residual's bound of lambda, far inside the interval. Pairs whose
+  /// wide interval holds another count than 1 are counted again at lambda -+ margin.
   void set_indices(std::vector<PencilEigenpair>& out) {
     std::vector<std::size_t> order;
     for (std::size_t i = 0; i < out.size(); ++i)
@@ -315,10 +316,29 @@ struct Engine {
     }
     const std::vector<int> c = detail::inertia_below_many(p, shifts);
     counts += static_cast<int>(shifts.size());
+    // A wide interval that does not hold exactly one eigenvalue (e.g. an eigenvalue between
+    // two pairs that no vector found) would reject both neighbours: those pairs are counted
+    // again at lambda -+ margin, as if they had no shared point.
+    std::vector<std::size_t> again;
+    std::vector<double> narrow;
     for (std::size_t k = 0; k < order.size(); ++k) {
       PencilEigenpair& e = out[order[k]];
       e.index = c[below[k]];
       e.multiplicity = c[above[k]] - c[below[k]];
+      if (e.multiplicity != 1) {
+        const double margin = count_margin(e.lambda, scale);
+        again.push_back(order[k]);
+        narrow.push_back(e.lambda - margin);
+        narrow.push_back(e.lambda + margin);
+      }
+    }
+    if (again.empty()) return;
+    const std::vector<int> cn = detail::inertia_below_many(p, narrow);
+    counts += static_cast<int>(narrow.size());
+    for (std::size_t k = 0; k < again.size(); ++k) {
+      PencilEigenpair& e = out[again[k]];
+      e.index = cn[2 * k];
+      e.multiplicity = cn[2 * k + 1] - cn[2 * k];
     }
   }
 

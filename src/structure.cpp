@@ -238,23 +238,49 @@ void Structure::values_at_rule(std::size_t first, std::size_t last, const double
     throw UsageError("Structure::values_at_rule: expected at most " +
                      std::to_string(max_rule_points) + " points and intervals inside 0.." +
                      std::to_string(m_iv.size()));
-  std::array<Basis, max_rule_points> b{};
-  for (std::size_t l = 0; l < q; ++l) b[l] = basis(t[l]);
+  // The number of points as a compile-time constant, so that the loops over them unroll.
+  switch (q) {
+  case 0: return;
+  case 1: return values_at_rule_fixed<1>(first, last, t, out);
+  case 2: return values_at_rule_fixed<2>(first, last, t, out);
+  case 3: return values_at_rule_fixed<3>(first, last, t, out);
+  case 4: return values_at_rule_fixed<4>(first, last, t, out);
+  case 5: return values_at_rule_fixed<5>(first, last, t, out);
+  case 6: return values_at_rule_fixed<6>(first, last, t, out);
+  case 7: return values_at_rule_fixed<7>(first, last, t, out);
+  default: return values_at_rule_fixed<8>(first, last, t, out);
+  }
+}
+
+template <std::size_t Q>
+void Structure::values_at_rule_fixed(std::size_t first, std::size_t last, const double* t,
+                                     StructureValues* out) const {
+  static_assert(Q <= max_rule_points, "at most max_rule_points points");
+  std::array<Basis, Q> b{};
+  for (std::size_t l = 0; l < Q; ++l) b[l] = basis(t[l]);
+  // Points taken from values_at as they are: table rows (t = 0, 1), and the midpoint where
+  // the preparation kept its values.
+  std::array<bool, Q> row{}, half{};
+  for (std::size_t l = 0; l < Q; ++l) {
+    row[l] = t[l] == 0.0 || t[l] == 1.0;
+    half[l] = t[l] == 0.5;
+  }
   // Blocks of intervals: the values without exponential first, each curve's shape looked at
   // once per interval, the arguments of the exponentials collected; then those exponentials
   // in one loop of independent calls.
   constexpr std::size_t block = 64;
-  std::array<double, 2 * max_rule_points * block> arg;
-  std::array<double*, 2 * max_rule_points * block> dest;
-  std::array<bool, max_rule_points> direct{}; // point taken from values_at (row or midpoint)
+  std::array<double, 2 * Q * block> arg;
+  std::array<double*, 2 * Q * block> dest;
+  std::array<bool, Q> direct{};
   for (std::size_t i0 = first; i0 < last; i0 += block) {
     const std::size_t i1 = std::min(last, i0 + block);
     std::size_t ne = 0;
     for (std::size_t i = i0; i < i1; ++i) {
       const Interval& iv = m_iv[i];
-      StructureValues* o = out + (i - first) * q;
-      for (std::size_t l = 0; l < q; ++l) {
-        direct[l] = t[l] == 0.0 || t[l] == 1.0 || (t[l] == 0.5 && m_mid_known[i]);
+      StructureValues* o = out + (i - first) * Q;
+      const bool mid_known = m_mid_known[i] != 0;
+      for (std::size_t l = 0; l < Q; ++l) {
+        direct[l] = row[l] || (half[l] && mid_known);
         if (direct[l]) {
           o[l] = values_at(i, t[l]);
         } else {
@@ -263,7 +289,7 @@ void Structure::values_at_rule(std::size_t first, std::size_t last, const double
         }
       }
       auto curve = [&](const Curve& c, double StructureValues::*field) {
-        for (std::size_t l = 0; l < q; ++l)
+        for (std::size_t l = 0; l < Q; ++l)
           if (!direct[l]) {
             if (log_argument(c, t[l], b[l], arg[ne])) dest[ne++] = &(o[l].*field);
             else o[l].*field = value(c, t[l], b[l]);

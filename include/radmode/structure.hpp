@@ -200,6 +200,10 @@ private:
     c.g1 = g1;
     c.shape = shape;
   }
+  /// values_at_rule for Q points (a compile-time count).
+  template <std::size_t Q>
+  void values_at_rule_fixed(std::size_t first, std::size_t last, const double* t,
+                            StructureValues* out) const;
   /// log_values_at for one point; returns the flags.
   unsigned log_values(std::size_t interval, double t, StructureValues& out) const;
   /// Value and derivative with respect to t (b = basis(t), used by the Hermite shapes).

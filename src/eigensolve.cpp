@@ -142,6 +142,9 @@ double spectrum_scale(const TridiagonalPencil& p) {
 double count_margin(double lambda, double scale) { return 1e-9 * std::abs(lambda) + 64 * eps * scale; }
 
 /// Fewest unknowns of the coarsest mesh of the nested solve for eigenvalue indices below i1.
+/// Bottom meshes up to this size are solved by bisection_solve instead of Lanczos.
+constexpr std::size_t bisection_max_unknowns = 400;
+
 std::size_t nested_min_unknowns(int i1) { return static_cast<std::size_t>(std::max(4 * i1 + 40, 100)); }
 
 struct Engine {
@@ -562,6 +565,74 @@ std::vector<double> predict_finer(const std::vector<double>& coarse,
   return out;
 }
 
+/// Eigenpairs [i0, i1) of a small pencil (the bottom of a nested solve) without Lanczos:
+/// multisection on the inertia count separates each target eigenvalue into a bracket of its
+/// own, about 1e-3 of its value wide (the midpoints of all open brackets counted together in
+/// each round, every count narrowing every bracket it bears on); then Rayleigh quotient
+/// iteration, its first step shifted to the bracket's midpoint, from a smooth start vector
+/// (the first step is inverse iteration next to the target: its neighbours are damped by at
+/// least the ratio of the bracket width to the gap). The same verification and recovery as
+/// solve_pencil (finalize). nullopt when the brackets do not form (the caller then uses
+/// solve_pencil).
+std::optional<PencilSpectrum> bisection_solve(const TridiagonalPencil& p, int i0, int i1) {
+  Engine eng(p);
+  const int nev = i1 - i0;
+  if (nev < 1 || i1 > eng.n) return std::nullopt;
+  // Outer bracket: count(lo) <= i0 and count(hi) >= i1.
+  const double lo = eng.below_lowest();
+  double step = std::max(std::abs(lo), 1e-12 * eng.scale), hi = lo + step;
+  int c_hi = eng.count(hi);
+  for (int it = 0; it < 200 && c_hi < i1; ++it) {
+    step *= 4;
+    hi = lo + step;
+    c_hi = eng.count(hi);
+  }
+  if (c_hi < i1) return std::nullopt;
+  const auto n_ev = static_cast<std::size_t>(nev);
+  std::vector<double> blo(n_ev, lo), bhi(n_ev, hi);
+  std::vector<int> clo(n_ev, 0), chi(n_ev, c_hi);
+  auto closed = [&](std::size_t k) {
+    const double width = bhi[k] - blo[k];
+    return chi[k] - clo[k] == 1 &&
+           width <= 1e-3 * std::max(std::abs(blo[k]), std::abs(bhi[k])) + 64 * eps * eng.scale;
+  };
+  std::vector<double> shifts;
+  for (int round = 0; round < 200; ++round) {
+    shifts.clear();
+    for (std::size_t k = 0; k < n_ev; ++k) {
+      if (closed(k)) continue;
+      const double mid = 0.5 * (blo[k] + bhi[k]);
+      if (!(mid > blo[k] && mid < bhi[k])) return std::nullopt; // cannot be split further
+      if (shifts.empty() || shifts.back() != mid) shifts.push_back(mid);
+    }
+    if (shifts.empty()) break;
+    const std::vector<int> c = detail::inertia_below_many(p, shifts);
+    eng.counts += static_cast<int>(shifts.size());
+    for (std::size_t a = 0; a < shifts.size(); ++a)
+      for (std::size_t k = 0; k < n_ev; ++k) {
+        const int index = i0 + static_cast<int>(k);
+        if (c[a] <= index && shifts[a] > blo[k]) blo[k] = shifts[a], clo[k] = c[a];
+        else if (c[a] > index && shifts[a] < bhi[k]) bhi[k] = shifts[a], chi[k] = c[a];
+      }
+  }
+  for (std::size_t k = 0; k < n_ev; ++k)
+    if (!closed(k)) return std::nullopt;
+  std::vector<std::vector<double>> xs(n_ev, std::vector<double>(p.size()));
+  std::vector<double> first_shifts(n_ev);
+  for (std::size_t k = 0; k < n_ev; ++k) {
+    for (std::size_t i = 0; i < p.size(); ++i)
+      xs[k][i] = 1.0 + 0.5 * std::sin(0.7 * static_cast<double>(i) + 0.3);
+    first_shifts[k] = 0.5 * (blo[k] + bhi[k]);
+  }
+  PencilSpectrum out;
+  const std::vector<detail::RqiStats> stats =
+      detail::rayleigh_iterate(p, xs, 1, 8, eng.scale, 1e-10, first_shifts);
+  out.iteration_work = iteration_work(stats, p.size());
+  finalize(eng, eng.finish_all(std::move(xs), true, &stats), i0, i1, out);
+  out.shift = first_shifts.front();
+  return out;
+}
+
 /// Nested iteration over a family of meshes, each every other node of the one above (pencils
 /// by Galerkin restriction, detail::coarsen): Spectra shift-invert Lanczos on the coarsest,
 /// then Rayleigh quotient iteration on each finer mesh from the prolonged eigenvectors of the
@@ -590,7 +661,11 @@ nested_solve(const TridiagonalPencil& pf, const detail::MeshLevel& coarse,
     lower.push_back(std::move(*next));
   }
   const TridiagonalPencil& bottom = lower.empty() ? *pc : lower.back().pencil;
-  PencilSpectrum sb = solve_pencil(bottom, by_index);
+  std::optional<PencilSpectrum> by_bisection;
+  if (bottom.size() <= bisection_max_unknowns) by_bisection = bisection_solve(bottom, i0, i1);
+  PencilSpectrum sb = by_bisection && by_bisection->status == SolveStatus::ok
+                          ? std::move(*by_bisection)
+                          : solve_pencil(bottom, by_index);
   if (sb.status != SolveStatus::ok || static_cast<int>(sb.pairs.size()) != i1 - i0) return std::nullopt;
   std::vector<std::vector<double>> xs;
   xs.reserve(sb.pairs.size());

@@ -475,6 +475,7 @@ std::optional<std::pair<std::string, std::string>> metadata_of(std::string_view 
 struct Target {
   std::size_t slot = 0; ///< index into the value arrays; `ignored` when the field is not read
   Unit unit;
+  bool scaled = false; ///< unit.log10 or unit.factor != 1 (the value needs converting)
 };
 constexpr std::size_t ignored = static_cast<std::size_t>(-1);
 
@@ -500,8 +501,10 @@ private:
   void set_up_native(std::string_view header);
   void set_up_mapped(std::string_view first, bool& first_is_data);
   void read_row(std::string_view line);
-  /// Converts the field starting at `begin` for `target` and appends it; returns the end of
-  /// the field.
+  /// Room for at least one more row in every value array and in the line numbers.
+  void grow(std::string_view line);
+  /// Converts the field starting at `begin` for `target` and stores it in row m_rows; returns
+  /// the end of the field.
   const char* store(const Target& target, std::size_t column, const char* begin,
                     const char* line_end);
   StellarModel assemble();
@@ -517,6 +520,11 @@ private:
   std::vector<Slot> m_slots;
   std::vector<std::size_t> m_lines;
   std::size_t m_header_line = 0;
+  // Rows are written in place: every value array (and m_lines) is sized m_capacity, checked
+  // once per row; row i goes to m_out[slot][i]; assemble() cuts the arrays to m_rows.
+  std::vector<double*> m_out;
+  std::size_t m_rows = 0;
+  std::size_t m_capacity = 0;
 };
 
 bool TableReader::next_line(std::string_view& line) {
@@ -570,6 +578,7 @@ void TableReader::set_up_native(std::string_view header) {
       const auto unit = parse_unit(unit_text, q, why);
       if (!unit) throw InputError(ErrorKind::bad_format, at(m_line_no, column, name), why);
       target.unit = *unit;
+      target.scaled = unit->log10 || unit->factor != 1.0;
     }
     target.slot = m_slots.size();
     m_targets.push_back(target);
@@ -652,6 +661,7 @@ void TableReader::set_up_mapped(std::string_view first, bool& first_is_data) {
     const auto unit = parse_unit(spec.unit, q, why);
     if (!unit) throw UsageError("column map item " + qname + ": " + why);
     target.unit = *unit;
+    target.scaled = unit->log10 || unit->factor != 1.0;
     target.slot = m_slots.size();
     Slot slot;
     slot.quantity = q;
@@ -697,7 +707,7 @@ const char* TableReader::store(const Target& target, std::size_t column, const c
                            "'");
     v = *value;
   }
-  if (target.unit.log10 || target.unit.factor != 1.0) {
+  if (target.scaled) {
     if (target.unit.log10) v = std::pow(10.0, v);
     v *= target.unit.factor;
     if (!std::isfinite(v)) {
@@ -708,19 +718,26 @@ const char* TableReader::store(const Target& target, std::size_t column, const c
                            "' overflows a double after unit conversion");
     }
   }
-  m_slots[target.slot].values.push_back(v);
+  m_out[target.slot][m_rows] = v;
   return stop;
 }
 
-void TableReader::read_row(std::string_view line) {
-  if (m_lines.empty()) {
-    // Room for as many more rows as fit the rest of the text at this row's length (the
-    // arrays still grow when later rows are shorter).
-    const std::size_t rest = m_text.size() - std::min(m_pos, m_text.size());
-    const std::size_t rows = rest / (line.size() + 1) + 1;
-    for (auto& s : m_slots) s.values.reserve(rows);
-    m_lines.reserve(rows);
+void TableReader::grow(std::string_view line) {
+  // First: room for as many rows as fit the rest of the text at this row's length; later
+  // (shorter rows) twice as many.
+  const std::size_t rest = m_text.size() - std::min(m_pos, m_text.size());
+  const std::size_t rows = std::max(m_rows + rest / (line.size() + 1) + 1, 2 * m_capacity);
+  m_out.resize(m_slots.size());
+  for (std::size_t i = 0; i < m_slots.size(); ++i) {
+    m_slots[i].values.resize(rows);
+    m_out[i] = m_slots[i].values.data();
   }
+  m_lines.resize(rows);
+  m_capacity = rows;
+}
+
+void TableReader::read_row(std::string_view line) {
+  if (m_rows == m_capacity) grow(line);
   const char* p = line.data();
   const char* const end = p + line.size();
   const std::size_t n_targets = m_targets.size();
@@ -751,7 +768,8 @@ void TableReader::read_row(std::string_view line) {
                      "expected " + std::to_string(n_targets) + " fields as in " + ref + ", found " +
                          std::to_string(column));
   }
-  m_lines.push_back(m_line_no);
+  m_lines[m_rows] = m_line_no;
+  ++m_rows;
 }
 
 StellarModel TableReader::read() {
@@ -798,6 +816,8 @@ StellarModel TableReader::read() {
 }
 
 StellarModel TableReader::assemble() {
+  for (auto& s : m_slots) s.values.resize(m_rows);
+  m_lines.resize(m_rows);
   StellarModel model;
   model.source = m_source;
   model.metadata = std::move(m_metadata);

@@ -374,7 +374,16 @@ Scan scan_number(const char* p, const char* end, const char*& stop, double& out)
   std::uint64_t w = 0;
   int digits = 0; // significant digits
   int place = 0;  // digits read
-  read_digits(p, end, w, digits, place);
+  if (end - p >= 2 && is_digit(p[0]) && p[1] == '.') {
+    // One digit before the point (as %.17g writes numbers below 10 and the exponent form):
+    // no multi-digit loads that would end at the point.
+    w = static_cast<std::uint64_t>(p[0] - '0');
+    digits = w != 0;
+    place = 1;
+    ++p;
+  } else {
+    read_digits(p, end, w, digits, place);
+  }
   int k = 0; // decimal exponent of w's last digit
   if (p != end && *p == '.') {
     ++p;

@@ -326,3 +326,23 @@ TEST_CASE("16-19 significant digits in table rows: the reader's own pass agrees 
   }
   CHECK(mismatches == 0);
 }
+
+TEST_CASE("One digit before the point: short and long forms agree with from_chars") {
+  // The reader takes a single digit followed by '.' (as %.17g writes numbers below 10 and
+  // the exponent form) without its multi-digit loads (src/model_read.cpp); these tokens put
+  // the point right after the first digit, with and without fraction digits, signs, leading
+  // zeros in the fraction, exponents, and more digits than the 19 the reader keeps.
+  Comparison cmp;
+  for (const char* t : {"0.", "5.", "9.", "-0.", "+3.", "0.5", "-0.5", "+7.25e3", "0.000", "1.e5",
+                        "1.E-5", "2.d3", "0.0000000000000000000001234", "0.00000000000000000001",
+                        "9.99999999999999999999", "1.2345678901234567890123e10", "0.1e0",
+                        "1.6859247519828007e+24", "0.45349832253472372", "1.5492462311557789",
+                        "8.9999999999999999e-30", "3.0000000000000000e31", "-0.00000017"})
+    cmp.check(t);
+  CHECK(cmp.checked == 23);
+  CHECK(cmp.mismatches == 0);
+  // Not numbers (the reader's grammar, docs/table-format.md "Rows"; std::from_chars refuses
+  // them as well, or stops before their end).
+  for (const char* t : {"1.5x", "1.e", "1.-5", "1..5", "-.", "0.5e+", "1.5 2"})
+    CHECK_MESSAGE(!parse_number(t), t);
+}

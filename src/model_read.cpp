@@ -318,23 +318,33 @@ bool eisel_lemire(std::uint64_t w, int k, bool negative, double& out) {
   const PowerOfFive& t = powers_of_five.entry[k + max_table_power];
   const int z = __builtin_clzll(w);
   w <<= z;
-  const u128 upper = u128{w} * t.high; // bits 64..191 of P
-  const u128 lower = u128{w} * t.low;  // bits 0..127 of P
-  const u128 middle_sum = (upper & ~std::uint64_t{0}) + (lower >> 64);
-  const std::uint64_t low = static_cast<std::uint64_t>(lower);
-  const std::uint64_t middle = static_cast<std::uint64_t>(middle_sum);
-  const std::uint64_t high = static_cast<std::uint64_t>(upper >> 64) +
-                             static_cast<std::uint64_t>(middle_sum >> 64);
+  const u128 upper = u128{w} * t.high; // bits 64..191 of P, without the carry from below
   // P < 2^192 has its top bit at 191 or 190; keep 54 bits (53 + the round bit).
-  const int top = static_cast<int>(high >> 63);
-  const int rest_bits = 9 + top;
-  const std::uint64_t rest_mask = (std::uint64_t{1} << rest_bits) - 1;
-  const std::uint64_t rest_high = high & rest_mask;
-  if (rest_high == rest_mask && middle == ~std::uint64_t{0}) return false;
+  std::uint64_t high = static_cast<std::uint64_t>(upper >> 64);
+  int rest_bits = 9 + static_cast<int>(high >> 63);
+  std::uint64_t rest_mask = (std::uint64_t{1} << rest_bits) - 1;
+  std::uint64_t rest_high = high & rest_mask;
   std::uint64_t m = high >> rest_bits; // in [2^53, 2^54)
-  if ((rest_high | middle | low) == 0 && (m & 1) != 0) { // (the rare test first: no guess)
-    if (k < 0) return false;
-    if ((m & 2) == 0) m -= 1; // a tie: down to the even significand
+  // The low product w t.low adds less than 2^64 to bits 64..127, so at most 1 to `high`. When
+  // the high word's bits below the round bit are neither all zeros nor all ones, that carry
+  // changes neither m nor the top bit, the decline below needs a middle word of all ones (not
+  // reachable after a carry) and the tie test needs those bits zero: the low product changes
+  // nothing and is formed only otherwise (about 2 numbers in 512).
+  if (rest_high == 0 || rest_high == rest_mask) {
+    const u128 lower = u128{w} * t.low; // bits 0..127 of P
+    const u128 middle_sum = (upper & ~std::uint64_t{0}) + (lower >> 64);
+    const std::uint64_t low = static_cast<std::uint64_t>(lower);
+    const std::uint64_t middle = static_cast<std::uint64_t>(middle_sum);
+    high += static_cast<std::uint64_t>(middle_sum >> 64);
+    rest_bits = 9 + static_cast<int>(high >> 63);
+    rest_mask = (std::uint64_t{1} << rest_bits) - 1;
+    rest_high = high & rest_mask;
+    if (rest_high == rest_mask && middle == ~std::uint64_t{0}) return false;
+    m = high >> rest_bits;
+    if ((rest_high | middle | low) == 0 && (m & 1) != 0) { // (the rare test first: no guess)
+      if (k < 0) return false;
+      if ((m & 2) == 0) m -= 1; // a tie: down to the even significand
+    }
   }
   m = (m + 1) >> 1; // rounded to 53 bits; may carry to 2^53
   // w 10^k = P 2^(k - z - shift); P ~ m 2^(128 + rest_bits + 1).

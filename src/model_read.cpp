@@ -367,15 +367,20 @@ bool eisel_lemire(std::uint64_t, int, bool, double&) {
 }
 #endif
 
-enum class Scan {
-  converted, ///< `out` holds the value
-  standard,  ///< a decimal number for std::from_chars (sign and 'e' exponent only)
-  other,     ///< anything else: Fortran exponent, no digits, inf/nan text (full parse)
+/// What scan_number found: the end of the number and its value, or stop == nullptr when the
+/// number was not converted in the scanning pass (no digits, a Fortran exponent, more than 19
+/// significant digits, an exponent out of the fast range, a declined rounding: parse_number
+/// decides). Returned in two registers.
+struct Scanned {
+  const char* stop;
+  double value;
 };
 
-/// Reads the longest prefix of [p, end) of the form [+-]digits[.digits][(e|E|d|D)[+-]digits]
-/// (at least one mantissa digit); `stop` is set to its end.
-Scan scan_number(const char* p, const char* end, const char*& stop, double& out) {
+/// Reads the longest prefix of [p, end) of the form [+-]digits[.digits][(e|E)[+-]digits]
+/// (at least one mantissa digit) and converts it when that is certain to give std::from_chars's
+/// double.
+Scanned scan_number(const char* p, const char* end) {
+  constexpr Scanned not_converted{nullptr, 0.0};
   bool negative = false;
   if (p != end && (*p == '-' || *p == '+')) {
     negative = *p == '-';
@@ -401,28 +406,25 @@ Scan scan_number(const char* p, const char* end, const char*& stop, double& out)
     read_digits(p, end, w, digits, place);
     k = before_point - place;
   }
-  stop = p;
-  if (place == 0) return Scan::other;
-  Scan plain = Scan::standard;
-  if (p != end && (*p == 'e' || *p == 'E' || *p == 'd' || *p == 'D')) {
-    if (*p == 'd' || *p == 'D') plain = Scan::other;
+  if (place == 0) return not_converted;
+  if (p != end && (*p == 'e' || *p == 'E')) {
     ++p;
     bool exp_negative = false;
     if (p != end && (*p == '-' || *p == '+')) {
       exp_negative = *p == '-';
       ++p;
     }
-    if (p == end || !is_digit(*p)) return Scan::other; // "1e" is not a number
+    if (p == end || !is_digit(*p)) return not_converted; // "1e" is not a number
     int e = 0;
     for (; p != end && is_digit(*p); ++p)
       if (e < 100000) e = e * 10 + (*p - '0');
     k += exp_negative ? -e : e;
-    stop = p;
   }
+  double out = 0.0;
   if (digits <= max_digits &&
       (exact_product(w, k, negative, out) || eisel_lemire(w, k, negative, out)))
-    return Scan::converted;
-  return plain;
+    return Scanned{p, out};
+  return not_converted;
 }
 
 // --- Lines and fields ---------------------------------------------------------------------
@@ -698,20 +700,12 @@ const char* field_end(const char* p, const char* end) {
 
 const char* TableReader::store(const Target& target, std::size_t column, const char* begin,
                                const char* line_end) {
-  // Fast path: a plain decimal number that ends the field, converted in the same pass, or
-  // handed to std::from_chars with its end already known.
-  double v = 0.0;
-  const char* stop = nullptr;
-  const Scan scan = scan_number(begin, line_end, stop, v);
-  const bool field_ends = stop == line_end || is_blank_char(*stop) || *stop == '#';
-  bool done = field_ends && scan == Scan::converted;
-  if (field_ends && scan == Scan::standard) {
-    // from_chars takes no leading '+'.
-    const char* first = *begin == '+' ? begin + 1 : begin;
-    const auto res = std::from_chars(first, stop, v);
-    done = res.ec == std::errc() && res.ptr == stop && std::isfinite(v);
-  }
-  if (!done) {
+  // Fast path: a plain decimal number that ends the field, converted in the same pass;
+  // anything else goes to parse_number (std::from_chars, the error messages).
+  const Scanned scanned = scan_number(begin, line_end);
+  const char* stop = scanned.stop;
+  double v = scanned.value;
+  if (stop == nullptr || (stop != line_end && !is_blank_char(*stop) && *stop != '#')) {
     stop = field_end(begin, line_end);
     const std::string_view field(begin, static_cast<std::size_t>(stop - begin));
     const auto value = parse_number(field);
@@ -881,11 +875,8 @@ StellarModel TableReader::assemble() {
 std::optional<double> parse_number(std::string_view token) noexcept {
   if (token.empty()) return std::nullopt;
   {
-    double value = 0.0;
-    const char* last = token.data() + token.size();
-    const char* stop = nullptr;
-    if (scan_number(token.data(), last, stop, value) == Scan::converted && stop == last)
-      return value;
+    const Scanned scanned = scan_number(token.data(), token.data() + token.size());
+    if (scanned.stop == token.data() + token.size()) return scanned.value;
   }
   if (token[0] == '+') {
     token.remove_prefix(1);

@@ -524,10 +524,10 @@ private:
   void read_row(std::string_view line);
   /// Room for at least one more row in every value array and in the line numbers.
   void grow(std::string_view line);
-  /// Converts the field starting at `begin` for `target` and stores it in row m_rows; returns
-  /// the end of the field.
+  /// Converts the field starting at `begin` for `target` into `out` (its place in the row
+  /// being read); returns the end of the field.
   const char* store(const Target& target, std::size_t column, const char* begin,
-                    const char* line_end);
+                    const char* line_end, double& out);
   StellarModel assemble();
 
   std::string_view m_text;
@@ -699,7 +699,7 @@ const char* field_end(const char* p, const char* end) {
 }
 
 const char* TableReader::store(const Target& target, std::size_t column, const char* begin,
-                               const char* line_end) {
+                               const char* line_end, double& out) {
   // Fast path: a plain decimal number that ends the field, converted in the same pass;
   // anything else goes to parse_number (std::from_chars, the error messages).
   const Scanned scanned = scan_number(begin, line_end);
@@ -731,7 +731,7 @@ const char* TableReader::store(const Target& target, std::size_t column, const c
                            "' overflows a double after unit conversion");
     }
   }
-  m_out[target.slot][m_rows] = v;
+  out = v;
   return stop;
 }
 
@@ -754,6 +754,8 @@ void TableReader::read_row(std::string_view line) {
   const char* p = line.data();
   const char* const end = p + line.size();
   const std::size_t n_targets = m_targets.size();
+  double* const* const out = m_out.data();
+  const std::size_t row = m_rows;
   std::size_t column = 0;
   while (true) {
     while (p < end && is_blank_char(*p)) ++p;
@@ -764,7 +766,7 @@ void TableReader::read_row(std::string_view line) {
       p = field_end(p, end);
       continue;
     }
-    p = store(target, column, p, end);
+    p = store(target, column, p, end, out[target.slot][row]);
   }
   if (column != n_targets) {
     // Count the remaining fields for the message.

@@ -20,7 +20,9 @@
 //
 // Solution path (solve_modes): nested iteration over a family of meshes, each every other
 // node of the one above (pencils by Galerkin restriction, identical to assembling them):
-// Spectra shift-invert Lanczos on the coarsest (at least max(4 count + 40, 100) unknowns),
+// the coarsest (at least max(4 count + 40, 100) unknowns) by multisection on the inertia count
+// plus Rayleigh quotient iteration (up to 400 unknowns; Spectra shift-invert Lanczos above
+// that, or when the multisection cannot separate the eigenvalues),
 // then Rayleigh quotient iteration on each finer mesh from the prolonged eigenvectors of the
 // one below, up to the every-other-node mesh and the model mesh (both are needed for
 // Richardson anyway); on the two top meshes it runs until the residual is below 1e-7

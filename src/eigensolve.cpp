@@ -578,34 +578,14 @@ std::optional<PencilSpectrum> bisection_solve(const TridiagonalPencil& p, int i0
   Engine eng(p);
   const int nev = i1 - i0;
   if (nev < 1 || i1 > eng.n) return std::nullopt;
-  // Outer bracket: count(lo) <= i0 and count(hi) >= i1.
-  const double lo = eng.below_lowest();
-  double step = std::max(std::abs(lo), 1e-12 * eng.scale), hi = lo + step;
-  int c_hi = eng.count(hi);
-  for (int it = 0; it < 200 && c_hi < i1; ++it) {
-    step *= 4;
-    hi = lo + step;
-    c_hi = eng.count(hi);
-  }
-  if (c_hi < i1) return std::nullopt;
   const auto n_ev = static_cast<std::size_t>(nev);
-  std::vector<double> blo(n_ev, lo), bhi(n_ev, hi);
-  std::vector<int> clo(n_ev, 0), chi(n_ev, c_hi);
-  auto closed = [&](std::size_t k) {
-    const double width = bhi[k] - blo[k];
-    return chi[k] - clo[k] == 1 &&
-           width <= 1e-3 * std::max(std::abs(blo[k]), std::abs(bhi[k])) + 64 * eps * eng.scale;
-  };
+  // Brackets [blo_k, bhi_k] of the eigenvalue with index i0 + k, with their counts:
+  // count(blo_k) <= i0 + k < count(bhi_k). Every count narrows every bracket it bears on.
+  const double inf = std::numeric_limits<double>::infinity();
+  std::vector<double> blo(n_ev, -inf), bhi(n_ev, inf);
+  std::vector<int> clo(n_ev, 0), chi(n_ev, eng.n);
   std::vector<double> shifts;
-  for (int round = 0; round < 200; ++round) {
-    shifts.clear();
-    for (std::size_t k = 0; k < n_ev; ++k) {
-      if (closed(k)) continue;
-      const double mid = 0.5 * (blo[k] + bhi[k]);
-      if (!(mid > blo[k] && mid < bhi[k])) return std::nullopt; // cannot be split further
-      if (shifts.empty() || shifts.back() != mid) shifts.push_back(mid);
-    }
-    if (shifts.empty()) break;
+  auto count_all = [&]() {
     const std::vector<int> c = detail::inertia_below_many(p, shifts);
     eng.counts += static_cast<int>(shifts.size());
     for (std::size_t a = 0; a < shifts.size(); ++a)
@@ -614,6 +594,56 @@ std::optional<PencilSpectrum> bisection_solve(const TridiagonalPencil& p, int i0
         if (c[a] <= index && shifts[a] > blo[k]) blo[k] = shifts[a], clo[k] = c[a];
         else if (c[a] > index && shifts[a] < bhi[k]) bhi[k] = shifts[a], chi[k] = c[a];
       }
+  };
+  // Outer bracket: eight points around the Rayleigh quotient of the constant vector (an
+  // upper bound of the lowest eigenvalue), rq -+ delta 4^j, counted in one pass (a pass
+  // costs about the same for one shift or eight: each shift's recurrence is a chain of
+  // dependent divisions), widened until every bracket is finite.
+  double k1 = 0, m1 = 0;
+  for (std::size_t j = 0; j < p.size(); ++j) k1 += p.k_diag[j], m1 += p.m_diag[j];
+  for (std::size_t j = 0; j + 1 < p.size(); ++j) k1 += 2 * p.k_off[j], m1 += 2 * p.m_off[j];
+  const double rq = k1 / m1;
+  double delta = std::max(std::abs(rq), 1e-12 * eng.scale);
+  for (int it = 0; it < 40; ++it) {
+    bool finite = true;
+    for (std::size_t k = 0; k < n_ev; ++k) finite = finite && std::isfinite(blo[k]) && std::isfinite(bhi[k]);
+    if (finite) break;
+    shifts.clear();
+    for (int j = 0; j < 4; ++j) {
+      shifts.push_back(rq - delta * std::ldexp(1.0, 2 * j));
+      shifts.push_back(rq + delta * std::ldexp(1.0, 2 * j));
+    }
+    count_all();
+    delta *= 256;
+  }
+  auto closed = [&](std::size_t k) {
+    const double width = bhi[k] - blo[k];
+    return chi[k] - clo[k] == 1 &&
+           width <= 1e-3 * std::max(std::abs(blo[k]), std::abs(bhi[k])) + 64 * eps * eng.scale;
+  };
+  // Rounds: up to eight points per pass, spread evenly over the open brackets (brackets
+  // shared by several targets counted once), each bracket cut into equal parts.
+  for (int round = 0; round < 200; ++round) {
+    std::vector<std::size_t> open;
+    for (std::size_t k = 0; k < n_ev; ++k) {
+      if (!std::isfinite(blo[k]) || !std::isfinite(bhi[k])) return std::nullopt;
+      if (closed(k)) continue;
+      if (!open.empty() && blo[open.back()] == blo[k] && bhi[open.back()] == bhi[k]) continue;
+      open.push_back(k);
+    }
+    if (open.empty()) break;
+    shifts.clear();
+    constexpr std::size_t per_pass = 8; // the widest block of inertia_below_many
+    const std::size_t per = std::max<std::size_t>(1, per_pass / open.size());
+    for (const std::size_t k : open) {
+      const double step = (bhi[k] - blo[k]) / static_cast<double>(per + 1);
+      for (std::size_t q = 1; q <= per; ++q) {
+        const double point = blo[k] + step * static_cast<double>(q);
+        if (!(point > blo[k] && point < bhi[k])) return std::nullopt; // cannot split further
+        shifts.push_back(point);
+      }
+    }
+    count_all();
   }
   for (std::size_t k = 0; k < n_ev; ++k)
     if (!closed(k)) return std::nullopt;

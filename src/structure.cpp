@@ -138,17 +138,16 @@ void Structure::prepare(bool rows_known) {
   m_mid.reserve(n - 1);
   m_mid_known.reserve(n - 1);
   m_node_r.reserve(n);
-  m_discontinuity.reserve(n);
   m_node_r.push_back(r[0]);
-  m_discontinuity.push_back(false);
   // Where both pressure cubics are usable the shape is chosen at the midpoint: the log cubic
   // is put in place first, and the logs of P and rho there kept in m_mid; their exponentials
   // are evaluated afterwards in one loop, then the choice is made.
   const Basis mid = basis(0.5); // constant-folded
   for (std::size_t j = 0; j + 1 < n; ++j) {
     if (r[j + 1] == r[j]) { // repeated radius: no interval, the node is a discontinuity
-      if (!m_discontinuity.back()) m_discontinuity_nodes.push_back(m_node_r.size() - 1);
-      m_discontinuity.back() = true;
+      const std::size_t node = m_node_r.size() - 1;
+      if (m_discontinuity_nodes.empty() || m_discontinuity_nodes.back() != node)
+        m_discontinuity_nodes.push_back(node);
       continue;
     }
     Interval& iv = m_iv.emplace_back();
@@ -180,8 +179,10 @@ void Structure::prepare(bool rows_known) {
       if (!log_argument(iv.rho, 0.5, mid, v.rho)) v.rho = value(iv.rho, 0.5, mid);
     }
     m_node_r.push_back(r[j + 1]);
-    m_discontinuity.push_back(false);
   }
+  // The flags from the list (a bit vector grown row by row costs more).
+  m_discontinuity.assign(m_node_r.size(), false);
+  for (const std::size_t node : m_discontinuity_nodes) m_discontinuity[node] = true;
   const std::size_t count = m_iv.size();
   double unused = 0;
   for (std::size_t i = 0; i < count; ++i)

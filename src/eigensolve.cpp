@@ -1241,16 +1241,16 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
     m.error_estimate = err * unit;
 
     // xi at every node (0 at a rigid inner node), normalized to xi(R) = 1.
-    m.xi.assign(out.node_r.size(), 0.0);
-    for (std::size_t j = 0; j < e.x.size(); ++j) m.xi[pf.node[j]] = e.x[j];
-    AbsRange range = abs_range(m.xi);
-    const double surface = m.xi.back();
+    // (Nodes without an unknown, a rigid inner node, have xi = 0; the node count, which
+    // neither a scale factor nor those zeros change, is taken from x itself.)
+    const AbsRange range = abs_range(e.x);
+    const std::size_t surface_node = out.node_r.size() - 1;
+    const double surface = pf.node.back() == surface_node ? e.x.back() : 0.0;
     const double by = std::abs(surface) > 1e-8 * range.max ? surface : range.max;
     if (by != surface) add_flag(m, "xi(R) is close to zero: normalized to max |xi| = 1 instead");
-    for (double& v : m.xi) v /= by;
-    range.max /= std::abs(by);
-    range.min /= std::abs(by);
-    m.nodes = count_nodes(m.xi, range);
+    m.xi.assign(out.node_r.size(), 0.0);
+    for (std::size_t j = 0; j < e.x.size(); ++j) m.xi[pf.node[j]] = e.x[j] / by;
+    m.nodes = count_nodes(e.x, range);
     m.order_agrees = m.nodes == m.order;
 
     if (!m.order_agrees)

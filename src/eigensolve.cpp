@@ -141,10 +141,10 @@ double spectrum_scale(const TridiagonalPencil& p) {
 /// trusted to separate it from its neighbours (round-off of the counts and of lambda).
 double count_margin(double lambda, double scale) { return 1e-9 * std::abs(lambda) + 64 * eps * scale; }
 
-/// Fewest unknowns of the coarsest mesh of the nested solve for eigenvalue indices below i1.
 /// Bottom meshes up to this size are solved by bisection_solve instead of Lanczos.
 constexpr std::size_t bisection_max_unknowns = 400;
 
+/// Fewest unknowns of the coarsest mesh of the nested solve for eigenvalue indices below i1.
 std::size_t nested_min_unknowns(int i1) { return static_cast<std::size_t>(std::max(4 * i1 + 40, 100)); }
 
 struct Engine {
@@ -163,9 +163,8 @@ struct Engine {
     return inertia_below(p, s);
   }
 
-  /// A point below every eigenvalue, within a few bracket widths of the lowest one.
-  double below_lowest() {
-    // Rayleigh quotient of the constant vector: an upper bound of the lowest eigenvalue.
+  /// Rayleigh quotient of the constant vector: an upper bound of the lowest eigenvalue.
+  double constant_quotient() const {
     double k1 = 0, m1 = 0;
     for (std::size_t j = 0; j < p.size(); ++j) {
       k1 += p.k_diag[j];
@@ -175,7 +174,12 @@ struct Engine {
       k1 += 2 * p.k_off[j];
       m1 += 2 * p.m_off[j];
     }
-    const double rq = k1 / m1;
+    return k1 / m1;
+  }
+
+  /// A point below every eigenvalue, within a few bracket widths of the lowest one.
+  double below_lowest() {
+    const double rq = constant_quotient();
     double delta = std::max(std::abs(rq), 1e-12 * scale);
     double lo = rq - delta;
     for (int it = 0; it < 2000 && count(lo) > 0; ++it) {
@@ -599,10 +603,7 @@ std::optional<PencilSpectrum> bisection_solve(const TridiagonalPencil& p, int i0
   // upper bound of the lowest eigenvalue), rq -+ delta 4^j, counted in one pass (a pass
   // costs about the same for one shift or eight: each shift's recurrence is a chain of
   // dependent divisions), widened until every bracket is finite.
-  double k1 = 0, m1 = 0;
-  for (std::size_t j = 0; j < p.size(); ++j) k1 += p.k_diag[j], m1 += p.m_diag[j];
-  for (std::size_t j = 0; j + 1 < p.size(); ++j) k1 += 2 * p.k_off[j], m1 += 2 * p.m_off[j];
-  const double rq = k1 / m1;
+  const double rq = eng.constant_quotient();
   double delta = std::max(std::abs(rq), 1e-12 * eng.scale);
   for (int it = 0; it < 40; ++it) {
     bool finite = true;
@@ -664,8 +665,9 @@ std::optional<PencilSpectrum> bisection_solve(const TridiagonalPencil& p, int i0
 }
 
 /// Nested iteration over a family of meshes, each every other node of the one above (pencils
-/// by Galerkin restriction, detail::coarsen): Spectra shift-invert Lanczos on the coarsest,
-/// then Rayleigh quotient iteration on each finer mesh from the prolonged eigenvectors of the
+/// by Galerkin restriction, detail::coarsen): bisection_solve on the coarsest (solve_pencil,
+/// i.e. Spectra shift-invert Lanczos, above bisection_max_unknowns or if that fails), then
+/// Rayleigh quotient iteration on each finer mesh from the prolonged eigenvectors of the
 /// one below, up to `coarse` (every other node of the fine mesh) and the fine pencil `pf`
 /// itself. Levels below `coarse` only supply start vectors; `coarse` and `pf` are verified by
 /// inertia (refine_from). x: base-mesh coordinates; keep: base nodes every level keeps.

@@ -52,15 +52,16 @@ bool rows_look_valid(const StellarModel& model) {
   // no radius three times; rows 1 .. last - 1: P >= 0, rho > 0, Gamma1 > 0, all finite.
   // (Failures counted in a double: the form of these loops that GCC vectorizes.)
   double bad = 0.0;
-  for (std::size_t i = 2; i < n; ++i)
-    bad += (r[i] >= r[i - 1]) & (m[i] >= m[i - 1]) & ((r[i] != r[i - 1]) | (r[i - 1] != r[i - 2]))
-               ? 0.0
-               : 1.0;
-  for (std::size_t i = 1; i < last; ++i)
-    bad += (P[i] >= 0.0) & (P[i] <= big) & (rho[i] > 0.0) & (rho[i] <= big) & (g1[i] > 0.0) &
-                   (g1[i] <= big)
-               ? 0.0
-               : 1.0;
+  for (std::size_t i = 2; i < n; ++i) {
+    const bool ok_row = (r[i] >= r[i - 1]) & (m[i] >= m[i - 1]) &
+                        ((r[i] != r[i - 1]) | (r[i - 1] != r[i - 2]));
+    bad += ok_row ? 0.0 : 1.0;
+  }
+  for (std::size_t i = 1; i < last; ++i) {
+    const bool ok_row = (P[i] >= 0.0) & (P[i] <= big) & (rho[i] > 0.0) & (rho[i] <= big) &
+                        (g1[i] > 0.0) & (g1[i] <= big);
+    bad += ok_row ? 0.0 : 1.0;
+  }
   for (const auto* opt : {&model.T, &model.L, &model.nabla_ad, &model.u})
     for (const double v : *opt) bad += v >= -big && v <= big ? 0.0 : 1.0;
   return bad == 0.0;

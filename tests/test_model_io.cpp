@@ -712,8 +712,10 @@ TEST_CASE("validate_model: every defect at every position is refused, valid edge
       {"r", &StellarModel::r},     {"m", &StellarModel::m},           {"P", &StellarModel::P},
       {"rho", &StellarModel::rho}, {"Gamma1", &StellarModel::gamma1}, {"T", &StellarModel::T}};
   for (const std::size_t i : {std::size_t{0}, std::size_t{1}, n / 2, n - 2, n - 1})
-    for (const auto& [name, column] : columns)
+    for (const auto& entry : columns)
       for (const double bad : {nan, inf, -inf}) {
+        const char* const name = entry.first; // (not a structured binding: INFO captures it)
+        const Column column = entry.second;
         StellarModel m = good;
         (m.*column)[i] = bad;
         INFO("column " << name << ", point " << i << ", value " << bad);

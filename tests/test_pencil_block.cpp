@@ -160,8 +160,9 @@ TEST_CASE("nested solves of a large closed-form pencil: the requested eigenvalue
   // multisection on the inertia count plus Rayleigh quotient iteration (small counts) or by
   // Lanczos (larger ones). Either way the eigenvalues must be the closed-form ones.
   const Dirichlet d(4000);
-  for (const auto& [first, count] : {std::pair{0, 1}, std::pair{0, 5}, std::pair{3, 4},
-                                     std::pair{0, 30}, std::pair{10, 20}}) {
+  for (const auto& request_range : {std::pair{0, 1}, std::pair{0, 5}, std::pair{3, 4},
+                                    std::pair{0, 30}, std::pair{10, 20}}) {
+    const int first = request_range.first, count = request_range.second; // (INFO captures them)
     PencilRequest request;
     request.first = first;
     request.count = count;

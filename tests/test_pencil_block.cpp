@@ -180,3 +180,41 @@ TEST_CASE("nested solves of a large closed-form pencil: the requested eigenvalue
     }
   }
 }
+
+TEST_CASE("exactly double eigenvalues: reported with multiplicity 2, never invented") {
+  // Two identical decoupled blocks (the Dirichlet pencil twice, no coupling): every eigenvalue
+  // is exactly double, so the multisection of the nested solve cannot separate them and hands
+  // over to Lanczos; the inertia check then sees two eigenvalues at each lambda. Common
+  // practice: a solver must say so rather than return one vector per requested index.
+  const Dirichlet d(1000);
+  TridiagonalPencil p;
+  for (int block = 0; block < 2; ++block) {
+    const std::size_t offset = p.k_diag.size();
+    for (std::size_t j = 0; j < d.pencil.size(); ++j) {
+      p.k_diag.push_back(d.pencil.k_diag[j]);
+      p.m_diag.push_back(d.pencil.m_diag[j]);
+      p.node.push_back(offset + j);
+    }
+    for (std::size_t j = 0; j + 1 < d.pencil.size(); ++j) {
+      p.k_off.push_back(d.pencil.k_off[j]);
+      p.m_off.push_back(d.pencil.m_off[j]);
+    }
+    if (block == 0) {
+      p.k_off.push_back(0.0);
+      p.m_off.push_back(0.0);
+    }
+  }
+  for (const int count : {2, 4, 5}) {
+    PencilRequest request;
+    request.count = count;
+    const PencilSpectrum s = solve_pencil(p, request);
+    INFO("count " << count);
+    CHECK(s.status == SolveStatus::not_converged);
+    CHECK(s.pairs.size() < static_cast<std::size_t>(count));
+    for (const PencilEigenpair& e : s.pairs) {
+      CHECK(e.multiplicity == 2);
+      CHECK(e.index % 2 == 0);
+      CHECK(e.lambda == doctest::Approx(d.exact(e.index / 2)).epsilon(1e-9));
+    }
+  }
+}

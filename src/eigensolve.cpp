@@ -147,6 +147,24 @@ constexpr std::size_t bisection_max_unknowns = 400;
 /// Fewest unknowns of the coarsest mesh of the nested solve for eigenvalue indices below i1.
 std::size_t nested_min_unknowns(int i1) { return static_cast<std::size_t>(std::max(4 * i1 + 40, 100)); }
 
+/// Two extra inertia counts taken along with a set's verification (Engine::set_indices): a
+/// guard_width below its lowest and above its highest eigenvalue. solve_modes infers from them
+/// the counts of its "crowded" check whenever those shifts lie in between, instead of a pass
+/// of its own over the pencil (counts are monotone in the shift).
+struct GuardCounts {
+  double lambda_low = std::numeric_limits<double>::quiet_NaN(); ///< the set's lowest lambda
+  double lambda_high = std::numeric_limits<double>::quiet_NaN(); ///< and highest
+  double below = 0, above = 0;                 ///< the guard points
+  int count_below = -1, count_above = -1;      ///< their counts (-1: not taken)
+};
+
+/// The guard distance: a hundredth of |lambda| beyond the count margin (ten error estimates
+/// of a mode rarely reach that far, and the gaps between the low radial modes are wider;
+/// when either fails, solve_modes counts).
+double guard_width(double lambda, double scale) {
+  return 1e-2 * std::abs(lambda) + count_margin(lambda, scale);
+}
+
 struct Engine {
   const TridiagonalPencil& p;
   double scale;
@@ -154,6 +172,8 @@ struct Engine {
   int counts = 0; ///< inertia evaluations (diagnostics)
   /// Eigenvalue magnitude that normalizes residuals of eigenvalues near zero.
   double lambda_ref = 0;
+  /// When set, set_indices also takes the guard counts of its set.
+  GuardCounts* guards = nullptr;
 
   explicit Engine(const TridiagonalPencil& pencil)
       : p(pencil), scale(spectrum_scale(pencil)), n(static_cast<int>(pencil.size())) {}
@@ -321,8 +341,21 @@ struct Engine {
       shifts.push_back(lambda + margin);
       above[k] = shifts.size() - 1;
     }
+    const std::size_t n_verify = shifts.size();
+    if (guards && !order.empty()) { // in the same pass
+      guards->lambda_low = out[order.front()].lambda;
+      guards->lambda_high = out[order.back()].lambda;
+      guards->below = guards->lambda_low - guard_width(guards->lambda_low, scale);
+      guards->above = guards->lambda_high + guard_width(guards->lambda_high, scale);
+      shifts.push_back(guards->below);
+      shifts.push_back(guards->above);
+    }
     const std::vector<int> c = detail::inertia_below_many(p, shifts);
     counts += static_cast<int>(shifts.size());
+    if (shifts.size() > n_verify) {
+      guards->count_below = c[n_verify];
+      guards->count_above = c[n_verify + 1];
+    }
     // A wide interval that does not hold exactly one eigenvalue (e.g. an eigenvalue between
     // two pairs that no vector found) would reject both neighbours: those pairs are counted
     // again at lambda -+ margin, as if they had no shared point.
@@ -537,8 +570,10 @@ std::size_t iteration_work(const std::vector<detail::RqiStats>& stats, std::size
 PencilSpectrum refine_from(const TridiagonalPencil& p, int i0, int i1,
                            std::vector<std::vector<double>> starts, double residual_tol,
                            const std::vector<double>& first_shifts,
-                           const detail::Prolongation* from = nullptr) {
+                           const detail::Prolongation* from = nullptr,
+                           GuardCounts* guards = nullptr) {
   Engine eng(p);
+  eng.guards = guards;
   PencilSpectrum out;
   const std::vector<detail::RqiStats> stats =
       detail::rayleigh_iterate(p, starts, 2, 8, eng.scale, residual_tol, first_shifts, from);
@@ -675,7 +710,8 @@ std::optional<PencilSpectrum> bisection_solve(const TridiagonalPencil& p, int i0
 /// caller then solves pf directly).
 std::optional<std::pair<PencilSpectrum, PencilSpectrum>>
 nested_solve(const TridiagonalPencil& pf, const detail::MeshLevel& coarse,
-             const std::vector<double>& x, const std::vector<std::size_t>& keep, int i0, int i1) {
+             const std::vector<double>& x, const std::vector<std::size_t>& keep, int i0, int i1,
+             GuardCounts* guards = nullptr) {
   const TridiagonalPencil* pc = &coarse.pencil;
   PencilRequest by_index;
   by_index.first = i0;
@@ -752,7 +788,7 @@ nested_solve(const TridiagonalPencil& pf, const detail::MeshLevel& coarse,
   else lambda_coarse = std::move(lambdas);
   const detail::Prolongation up{x, *pc};
   PencilSpectrum sf = refine_from(pf, i0, i1, std::move(starts), 1e-10,
-                                  predict_finer(lambda_coarse, lambda_coarser), &up);
+                                  predict_finer(lambda_coarse, lambda_coarser), &up, guards);
   sf.iterations = sb.iterations;
   sf.iteration_work += sc.iteration_work;
   sf.shift = sb.shift;
@@ -1161,9 +1197,10 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
   // request; otherwise Spectra runs on the fine mesh directly.
   std::optional<PencilSpectrum> sc;
   PencilSpectrum sf;
+  GuardCounts guards; // taken by the nested solve with the model mesh's verification
   bool nested = false;
   if (pc && static_cast<int>(pc->size()) >= 2 * i1 + 20) {
-    if (auto both = nested_solve(pf, *coarse, form.x, s.discontinuity_nodes(), i0, i1)) {
+    if (auto both = nested_solve(pf, *coarse, form.x, s.discontinuity_nodes(), i0, i1, &guards)) {
       sf = std::move(both->first);
       sc = std::move(both->second);
       nested = true;
@@ -1286,7 +1323,29 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
     else shifts.push_back(e.lambda + 10 * err), expected.push_back(e.index + 1), owner.push_back(at);
     if (crowded) add_flag(out.modes[at], crowded_flag);
   }
-  const std::vector<int> counted = detail::inertia_below_many(pf, shifts);
+  // Counts at the ends of the set follow from the guard counts when the shift lies between a
+  // guard point and the pair's own verified count point (lambda -+ margin): counts are
+  // monotone, so equal counts at both give the count in between. The rest are counted.
+  std::vector<int> counted(shifts.size(), -1);
+  std::vector<double> to_count;
+  for (std::size_t k = 0; k < shifts.size(); ++k) {
+    const PencilEigenpair& e = sf.pairs[owner[k]];
+    const double margin = count_margin(e.lambda, eng.scale);
+    const bool low_end = expected[k] == e.index && e.lambda == guards.lambda_low &&
+                         guards.count_below == e.index && shifts[k] >= guards.below &&
+                         shifts[k] <= e.lambda - margin;
+    const bool high_end = expected[k] == e.index + 1 && e.lambda == guards.lambda_high &&
+                          guards.count_above == e.index + 1 && shifts[k] <= guards.above &&
+                          shifts[k] >= e.lambda + margin;
+    if (low_end || high_end) counted[k] = expected[k];
+    else to_count.push_back(shifts[k]);
+  }
+  if (!to_count.empty()) {
+    const std::vector<int> c = detail::inertia_below_many(pf, to_count);
+    std::size_t next = 0;
+    for (int& v : counted)
+      if (v < 0) v = c[next++];
+  }
   for (std::size_t k = 0; k < shifts.size(); ++k) {
     ModeSolution& m = out.modes[owner[k]];
     if (counted[k] != expected[k] && m.flag.find(crowded_flag) == std::string::npos)

@@ -29,8 +29,8 @@ std::string point_text(const StellarModel& model, std::size_t i) {
 
 /// The row checks of validate_model in one pass without branches (comparisons combined with
 /// `&`, so that the loop vectorizes): true when every check passes. Any NaN fails a
-/// comparison, an infinity fails `<= max`. (The loop does the lengths checks' work only on
-/// equal lengths, which the caller has established.)
+/// comparison, an infinity fails `<= max`. Called after the length checks (every column has
+/// r's length, at least StellarModel::min_points).
 bool rows_look_valid(const StellarModel& model) {
   const std::size_t n = model.r.size();
   const double* r = model.r.data();

@@ -4,6 +4,7 @@
 #include "radmode/error.hpp"
 #include "radmode/structure.hpp"
 
+#include "pair.hpp"
 #include "pencil_block.hpp"
 
 #include <Eigen/Dense>
@@ -132,8 +133,14 @@ private:
 
 /// Rough magnitude of the spectrum: max |K_jj| / M_jj (about the largest eigenvalue).
 double spectrum_scale(const TridiagonalPencil& p) {
-  double s = 0.0;
-  for (std::size_t j = 0; j < p.size(); ++j) s = std::max(s, std::abs(p.k_diag[j]) / p.m_diag[j]);
+  using namespace detail;
+  const std::size_t n = p.size(), pairs = n / 2 * 2;
+  const double* const kd = p.k_diag.data();
+  const double* const md = p.m_diag.data();
+  Pair s2 = {0.0, 0.0};
+  for (std::size_t j = 0; j < pairs; j += 2) s2 = max2(s2, abs2(load2(kd + j)) / load2(md + j));
+  double s = std::max(s2[0], s2[1]);
+  if (pairs < n) s = std::max(s, std::abs(kd[n - 1]) / md[n - 1]);
   return std::max(s, std::numeric_limits<double>::min());
 }
 
@@ -921,22 +928,25 @@ struct AbsRange {
   double max = 0, min = 0;
 };
 AbsRange abs_range(const std::vector<double>& x) {
+  using namespace detail;
   const std::size_t n = x.size(), quads = n / 4 * 4;
   if (n == 0) return {};
-  double hi[4] = {0.0, 0.0, 0.0, 0.0};
-  const double first = std::abs(x[0]);
-  double lo[4] = {first, first, first, first};
+  const double* const v = x.data();
+  const double first = std::abs(v[0]);
+  Pair hi[2] = {{0.0, 0.0}, {0.0, 0.0}}, lo[2] = {{first, first}, {first, first}};
   for (std::size_t i = 0; i < quads; i += 4)
-    for (std::size_t k = 0; k < 4; ++k) {
-      hi[k] = std::max(hi[k], std::abs(x[i + k]));
-      lo[k] = std::min(lo[k], std::abs(x[i + k]));
+    for (std::size_t k = 0; k < 2; ++k) {
+      const Pair a = abs2(load2(v + i + 2 * k));
+      hi[k] = max2(hi[k], a);
+      lo[k] = min2(lo[k], a);
     }
+  const Pair h = max2(hi[0], hi[1]), l = min2(lo[0], lo[1]);
+  AbsRange out{std::max(h[0], h[1]), std::min(l[0], l[1])};
   for (std::size_t i = quads; i < n; ++i) {
-    hi[0] = std::max(hi[0], std::abs(x[i]));
-    lo[0] = std::min(lo[0], std::abs(x[i]));
+    out.max = std::max(out.max, std::abs(v[i]));
+    out.min = std::min(out.min, std::abs(v[i]));
   }
-  return {std::max(std::max(hi[0], hi[1]), std::max(hi[2], hi[3])),
-          std::min(std::min(lo[0], lo[1]), std::min(lo[2], lo[3]))};
+  return out;
 }
 
 /// Sign changes of xi, ignoring entries below 1e-9 max|xi| (the exact zero at a rigid inner
@@ -945,8 +955,17 @@ int count_nodes(const std::vector<double>& xi, const AbsRange& range) {
   const double threshold = 1e-9 * range.max;
   int nodes = 0;
   if (range.min > threshold) {
-    // No entry to skip (the common case): the sign changes of neighbours, without branches.
-    for (std::size_t i = 0; i + 1 < xi.size(); ++i) nodes += (xi[i] < 0) != (xi[i + 1] < 0);
+    // No entry to skip (the common case): the sign changes of neighbours, without branches,
+    // two neighbour pairs at a time (a lane's mask is -1 where the signs differ).
+    using namespace detail;
+    const double* const v = xi.data();
+    const std::size_t pairs = xi.size() < 2 ? 0 : (xi.size() - 1) / 2 * 2;
+    PairMask changes = {0, 0};
+    const Pair zero = {0.0, 0.0};
+    for (std::size_t i = 0; i < pairs; i += 2)
+      changes += (load2(v + i) < zero) ^ (load2(v + i + 1) < zero);
+    nodes = -static_cast<int>(changes[0] + changes[1]);
+    for (std::size_t i = pairs; i + 1 < xi.size(); ++i) nodes += (v[i] < 0) != (v[i + 1] < 0);
     return nodes;
   }
   int sign = 0;
@@ -965,27 +984,34 @@ int count_nodes(const std::vector<double>& xi, const AbsRange& range) {
 /// order one). Four running sums (independent additions).
 double roundoff_scale(const std::vector<double>& ad, const std::vector<double>& ao,
                       const std::vector<double>& x, double den) {
+  using namespace detail;
   const std::size_t n = x.size();
   if (n == 0) return 0.0;
+  const double* const a = ad.data();
+  const double* const o = ao.data();
+  const double* const v = x.data();
   auto term = [&](std::size_t j) {
-    double abs_ax = std::abs(ad[j] * x[j]);
-    if (j > 0) abs_ax += std::abs(ao[j - 1] * x[j - 1]);
-    if (j + 1 < n) abs_ax += std::abs(ao[j] * x[j + 1]);
-    const double t = x[j] * abs_ax;
+    double abs_ax = std::abs(a[j] * v[j]);
+    if (j > 0) abs_ax += std::abs(o[j - 1] * v[j - 1]);
+    if (j + 1 < n) abs_ax += std::abs(o[j] * v[j + 1]);
+    const double t = v[j] * abs_ax;
     return t * t;
   };
-  double s[4] = {term(0), 0.0, 0.0, 0.0};
+  double s = term(0);
   std::size_t j = 1;
-  // Inner rows (both neighbours exist), four at a time.
+  // Inner rows (both neighbours exist), two pairs of rows at a time in independent sums.
+  Pair sums[2] = {{0.0, 0.0}, {0.0, 0.0}};
   for (; j + 4 < n; j += 4)
-    for (std::size_t k = 0; k < 4; ++k) {
-      const std::size_t i = j + k;
-      const double t = x[i] * (std::abs(ad[i] * x[i]) + std::abs(ao[i - 1] * x[i - 1]) +
-                               std::abs(ao[i] * x[i + 1]));
-      s[k] += t * t;
+    for (std::size_t k = 0; k < 2; ++k) {
+      const std::size_t i = j + 2 * k;
+      const Pair t = load2(v + i) * (abs2(load2(a + i) * load2(v + i)) +
+                                     abs2(load2(o + i - 1) * load2(v + i - 1)) +
+                                     abs2(load2(o + i) * load2(v + i + 1)));
+      sums[k] += t * t;
     }
-  for (; j < n; ++j) s[0] += term(j);
-  return std::sqrt((s[0] + s[1]) + (s[2] + s[3])) / den;
+  for (; j < n; ++j) s += term(j);
+  const Pair total = sums[0] + sums[1];
+  return std::sqrt(s + (total[0] + total[1])) / den;
 }
 
 void add_flag(ModeSolution& m, const std::string& text) {
@@ -1288,7 +1314,16 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
     const double by = std::abs(surface) > 1e-8 * range.max ? surface : range.max;
     if (by != surface) add_flag(m, "xi(R) is close to zero: normalized to max |xi| = 1 instead");
     m.xi.assign(out.node_r.size(), 0.0);
-    for (std::size_t j = 0; j < e.x.size(); ++j) m.xi[pf.node[j]] = e.x[j] / by;
+    if (!e.x.empty() && pf.node.back() - pf.node.front() + 1 == e.x.size()) {
+      // Consecutive nodes (the usual case): a plain loop, two divisions per instruction.
+      const std::size_t nx = e.x.size(), pairs = nx / 2 * 2;
+      const double* const from = e.x.data();
+      double* const to = m.xi.data() + pf.node.front();
+      for (std::size_t j = 0; j < pairs; j += 2) detail::store2(to + j, detail::load2(from + j) / by);
+      for (std::size_t j = pairs; j < nx; ++j) to[j] = from[j] / by;
+    } else {
+      for (std::size_t j = 0; j < e.x.size(); ++j) m.xi[pf.node[j]] = e.x[j] / by;
+    }
     m.nodes = count_nodes(e.x, range);
     m.order_agrees = m.nodes == m.order;
 

@@ -978,6 +978,25 @@ int count_nodes(const std::vector<double>& xi, const AbsRange& range) {
   return nodes;
 }
 
+/// The vector with value x[j] / by at node[j] (increasing) and 0 at the other of `nodes` nodes.
+std::vector<double> scaled_at_nodes(const std::vector<double>& x,
+                                    const std::vector<std::size_t>& node, std::size_t nodes,
+                                    double by) {
+  std::vector<double> out(nodes, 0.0);
+  if (x.empty()) return out;
+  if (node.back() - node.front() + 1 == x.size()) {
+    // Consecutive nodes (the usual case): a plain loop, two divisions per instruction.
+    const std::size_t pairs = x.size() / 2 * 2;
+    const double* const from = x.data();
+    double* const to = out.data() + node.front();
+    for (std::size_t j = 0; j < pairs; j += 2) detail::store2(to + j, detail::load2(from + j) / by);
+    for (std::size_t j = pairs; j < x.size(); ++j) to[j] = from[j] / by;
+  } else {
+    for (std::size_t j = 0; j < x.size(); ++j) out[node[j]] = x[j] / by;
+  }
+  return out;
+}
+
 /// The round-off scale of x^T A x for tridiagonal A (diagonal ad, off-diagonal ao), per unit
 /// x^T B x = den: sqrt(sum_i (|x_i| sum_j |A_ij x_j|)^2) / den (the standard deviation of the
 /// sum of the products A_ij x_i x_j if each carries an independent relative rounding error of
@@ -1210,7 +1229,7 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
   }
 
   ModeSet out;
-  out.node_r = s.node_r();
+  if (options.eigenfunctions) out.node_r = s.node_r();
   if (i1 <= i0) return out; // an empty window
 
   // Richardson partner mesh: every other node (discontinuities kept), its pencil the Galerkin
@@ -1309,21 +1328,11 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
     // (Nodes without an unknown, a rigid inner node, have xi = 0; the node count, which
     // neither a scale factor nor those zeros change, is taken from x itself.)
     const AbsRange range = abs_range(e.x);
-    const std::size_t surface_node = out.node_r.size() - 1;
+    const std::size_t surface_node = s.node_r().size() - 1;
     const double surface = pf.node.back() == surface_node ? e.x.back() : 0.0;
     const double by = std::abs(surface) > 1e-8 * range.max ? surface : range.max;
     if (by != surface) add_flag(m, "xi(R) is close to zero: normalized to max |xi| = 1 instead");
-    m.xi.assign(out.node_r.size(), 0.0);
-    if (!e.x.empty() && pf.node.back() - pf.node.front() + 1 == e.x.size()) {
-      // Consecutive nodes (the usual case): a plain loop, two divisions per instruction.
-      const std::size_t nx = e.x.size(), pairs = nx / 2 * 2;
-      const double* const from = e.x.data();
-      double* const to = m.xi.data() + pf.node.front();
-      for (std::size_t j = 0; j < pairs; j += 2) detail::store2(to + j, detail::load2(from + j) / by);
-      for (std::size_t j = pairs; j < nx; ++j) to[j] = from[j] / by;
-    } else {
-      for (std::size_t j = 0; j < e.x.size(); ++j) m.xi[pf.node[j]] = e.x[j] / by;
-    }
+    if (options.eigenfunctions) m.xi = scaled_at_nodes(e.x, pf.node, out.node_r.size(), by);
     m.nodes = count_nodes(e.x, range);
     m.order_agrees = m.nodes == m.order;
 

@@ -45,6 +45,7 @@ TrackRow evaluate_model(const StellarModel& model, const TrackOptions& options) 
 
   SolveOptions so = options.solve;
   so.count = options.count;
+  so.eigenfunctions = false; // a row needs no xi
   const ModeSet set = solve_modes(model, so);
   const double gm_r3 = d.mass_g / (d.radius_cm * d.radius_cm * d.radius_cm) * constants::G;
 

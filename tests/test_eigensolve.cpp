@@ -233,6 +233,35 @@ TEST_CASE("rigid inner boundary on an envelope: xi = 0 there, orders agree, abov
   }
 }
 
+TEST_CASE("without eigenfunctions: the same modes, errors and flags, no xi") {
+  // (What `radmode track` asks for: everything but the copy of xi.) Centre and rigid inner
+  // node (node list starting at 1), an unstable model (xi(R) normalization unaffected).
+  for (const bool rigid : {false, true}) {
+    const auto model = test::uniform_sphere(test::uniform_mesh(999, rigid ? 0.3 : 0.0), rigid ? 5.0 / 3.0 : 1.3);
+    SolveOptions with;
+    with.inner = rigid ? InnerCondition::rigid : InnerCondition::centre;
+    SolveOptions without = with;
+    without.eigenfunctions = false;
+    const ModeSet a = solve_modes(model, with), b = solve_modes(model, without);
+    REQUIRE(a.modes.size() == 5);
+    REQUIRE(b.modes.size() == 5);
+    CHECK(b.node_r.empty());
+    CHECK(a.node_r.size() == model.size());
+    for (std::size_t k = 0; k < 5; ++k) {
+      const ModeSolution &x = a.modes[k], &y = b.modes[k];
+      CHECK(y.xi.empty());
+      CHECK(x.xi.size() == model.size());
+      CHECK(x.xi.back() == 1.0); // normalized to xi(R) = 1
+      CHECK(x.omega2 == y.omega2);
+      CHECK(x.error_estimate == y.error_estimate);
+      CHECK(x.order == y.order);
+      CHECK(x.nodes == y.nodes);
+      CHECK(x.trusted == y.trusted);
+      CHECK(x.flag == y.flag);
+    }
+  }
+}
+
 TEST_CASE("surface conditions: the natural condition of each form holds at R") {
   // A uniform sphere cut at x = 0.9 keeps P_s = 0.19 P_c > 0. With fixed_pressure the
   // eigenfunctions must have delta P / P = p = -Gamma1 (3 xi + x xi') = 0 at the surface; with

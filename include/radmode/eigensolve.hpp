@@ -61,6 +61,10 @@ struct SolveOptions {
   std::optional<double> window_lo_omega2;
   std::optional<double> window_hi_omega2;
   bool richardson = true; ///< solve on the coarse mesh too, extrapolate and estimate the error
+  /// Fill ModeSolution::xi and ModeSet::node_r. false: everything else as usual (omega^2,
+  /// order, node count, errors, flags) without copying out the eigenfunctions -- all that a
+  /// row of `radmode track` needs.
+  bool eigenfunctions = true;
 
   static constexpr int max_count = 10000; ///< upper limit of `count`
 

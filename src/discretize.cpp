@@ -123,14 +123,38 @@ StellarUnits stellar_units(const Structure& s) {
   return u;
 }
 
+namespace {
+
+/// The stellar form's base mesh: node_r / R, the surface exactly at x = 1.
+std::vector<double> stellar_mesh(const Structure& s) {
+  const double R = s.radius();
+  const std::vector<double>& node_r = s.node_r();
+  std::vector<double> x(node_r.size(), 1.0);
+  for (std::size_t i = 0; i + 1 < x.size(); ++i) x[i] = node_r[i] / R;
+  return x;
+}
+
+/// Blocks of intervals whose quadrature points Structure::values_at_rule evaluates together
+/// (the same local coordinates in every interval).
+constexpr std::size_t form_block = 64;
+
+/// The stellar form's surface terms (regular surface only; see discretize.hpp).
+void set_surface_terms(WeakForm& f, const Structure& s, SurfaceCondition surface,
+                       const StellarUnits& units) {
+  if (surface == SurfaceCondition::regular) {
+    const double Ps = s.surface_pressure() * units.inv_P;
+    f.k_last = -4.0 * Ps;
+    f.m_last = Ps;
+  }
+}
+
+} // namespace
+
 WeakForm make_stellar_form(const Structure& s, SurfaceCondition surface,
                            const Structure* coefficients_from) {
-  const double R = s.radius();
   const StellarUnits units = stellar_units(s);
   const std::vector<double>& node_r = s.node_r();
-  std::vector<double> x(node_r.size(), 1.0); // the surface exactly at x = 1
-  for (std::size_t i = 0; i + 1 < x.size(); ++i) x[i] = node_r[i] / R;
-  WeakForm f = quadrature_layout(std::move(x), default_quadrature_points);
+  WeakForm f = quadrature_layout(stellar_mesh(s), default_quadrature_points);
   constexpr auto q = static_cast<std::size_t>(default_quadrature_points);
   // The coefficients at point j (interval i, position x) from the structure's values there.
   auto store = [&](std::size_t j, double xq, const StructureValues& p) {
@@ -141,9 +165,7 @@ WeakForm make_stellar_form(const Structure& s, SurfaceCondition surface,
     f.d[j] = c.d;
   };
   if (!coefficients_from) {
-    // Blocks of intervals, their points evaluated together (Structure::values_at_rule: the
-    // same local coordinates in every interval).
-    constexpr std::size_t block = 64;
+    constexpr std::size_t block = form_block;
     std::array<StructureValues, block * q> values{};
     const std::size_t ni = f.interval_count();
     for (std::size_t i0 = 0; i0 < ni; i0 += block) {
@@ -180,16 +202,16 @@ WeakForm make_stellar_form(const Structure& s, SurfaceCondition surface,
       }
     }
   }
-  if (surface == SurfaceCondition::regular) {
-    const double Ps = s.surface_pressure() * units.inv_P;
-    f.k_last = -4.0 * Ps;
-    f.m_last = Ps;
-  }
+  set_surface_terms(f, s, surface, units);
   return f;
 }
 
 std::vector<std::size_t> all_nodes(const WeakForm& form) {
-  std::vector<std::size_t> n(form.x.size());
+  return form.x.empty() ? std::vector<std::size_t>{} : all_nodes(form.interval_count());
+}
+
+std::vector<std::size_t> all_nodes(std::size_t last) {
+  std::vector<std::size_t> n(last + 1);
   for (std::size_t i = 0; i < n.size(); ++i) n[i] = i;
   return n;
 }
@@ -277,6 +299,43 @@ std::optional<Structure> every_other_row(const Structure& s) {
 
 namespace {
 
+/// Element integrals of the hat functions (left l, right r) of one element, summed over its
+/// quadrature points.
+struct ElementSums {
+  double kll = 0, krr = 0, klr = 0, mll = 0, mrr = 0, mlr = 0;
+
+  /// Adds the point xq of weight w with coefficients a, b, c, d (element [xr - h, xr],
+  /// inv_h = 1/h, inv_h2 = inv_h^2).
+  void add(double xq, double xr, double inv_h, double inv_h2, double w, double fa, double fb,
+           double c, double d) {
+    const double pl = (xr - xq) * inv_h, pr = 1.0 - pl;
+    const double a = fa * inv_h2, b = fb * inv_h;
+    kll += w * (a - 2.0 * b * pl + c * pl * pl);
+    krr += w * (a + 2.0 * b * pr + c * pr * pr);
+    klr += w * (-a + b * (pl - pr) + c * pl * pr);
+    mll += w * d * pl * pl;
+    mrr += w * d * pr * pr;
+    mlr += w * d * pl * pr;
+  }
+
+  /// Adds the sums of element e, coupling mesh nodes e and e + 1, i.e. unknowns e - lo and
+  /// e + 1 - lo of `p` (unknowns lo .. hi - 1); entries of removed (fixed) nodes are dropped.
+  void scatter(std::size_t e, std::size_t lo, std::size_t hi, TridiagonalPencil& p) const {
+    if (e >= lo && e < hi) {
+      p.k_diag[e - lo] += kll;
+      p.m_diag[e - lo] += mll;
+    }
+    if (e + 1 >= lo && e + 1 < hi) {
+      p.k_diag[e + 1 - lo] += krr;
+      p.m_diag[e + 1 - lo] += mrr;
+    }
+    if (e >= lo && e + 1 < hi) {
+      p.k_off[e - lo] += klr;
+      p.m_off[e - lo] += mlr;
+    }
+  }
+};
+
 /// Element integrals of the hat functions (left l, right r) on every element of `nodes`,
 /// added into the pencil `p` whose unknowns are mesh nodes lo .. hi - 1; Q points per base
 /// interval (a compile-time count, so the point loop unrolls).
@@ -286,40 +345,43 @@ void add_elements(const WeakForm& f, const std::vector<std::size_t>& nodes, std:
   const double* x = f.x.data();
   const double *ft = f.t.data(), *fw = f.w.data(), *fa = f.a.data(), *fb = f.b.data(),
                *fc = f.c.data(), *fd = f.d.data();
-  double *kd = p.k_diag.data(), *md = p.m_diag.data(), *ko = p.k_off.data(), *mo = p.m_off.data();
   const std::size_t nn = nodes.size();
   for (std::size_t e = 0; e + 1 < nn; ++e) {
     const double xl = x[nodes[e]], xr = x[nodes[e + 1]];
     const double h = xr - xl, inv_h = 1.0 / h, inv_h2 = inv_h * inv_h;
-    double kll = 0, krr = 0, klr = 0, mll = 0, mrr = 0, mlr = 0;
+    ElementSums sums;
     for (std::size_t i = nodes[e]; i < nodes[e + 1]; ++i) {
       const double x0 = x[i], hx = x[i + 1] - x0;
-      for (std::size_t j = i * Q; j < i * Q + Q; ++j) {
-        const double xq = x0 + ft[j] * hx;
-        const double pl = (xr - xq) * inv_h, pr = 1.0 - pl;
-        const double w = fw[j], a = fa[j] * inv_h2, b = fb[j] * inv_h, c = fc[j], d = fd[j];
-        kll += w * (a - 2.0 * b * pl + c * pl * pl);
-        krr += w * (a + 2.0 * b * pr + c * pr * pr);
-        klr += w * (-a + b * (pl - pr) + c * pl * pr);
-        mll += w * d * pl * pl;
-        mrr += w * d * pr * pr;
-        mlr += w * d * pl * pr;
-      }
+      for (std::size_t j = i * Q; j < i * Q + Q; ++j)
+        sums.add(x0 + ft[j] * hx, xr, inv_h, inv_h2, fw[j], fa[j], fb[j], fc[j], fd[j]);
     }
-    // Element e couples mesh nodes e and e + 1, i.e. unknowns e - lo and e + 1 - lo; entries
-    // of removed (fixed) nodes are dropped.
-    if (e >= lo && e < hi) {
-      kd[e - lo] += kll;
-      md[e - lo] += mll;
-    }
-    if (e + 1 >= lo && e + 1 < hi) {
-      kd[e + 1 - lo] += krr;
-      md[e + 1 - lo] += mrr;
-    }
-    if (e >= lo && e + 1 < hi) {
-      ko[e - lo] += klr;
-      mo[e - lo] += mlr;
-    }
+    sums.scatter(e, lo, hi, p);
+  }
+}
+
+/// An empty pencil for unknowns lo .. hi - 1 of the mesh `nodes`.
+TridiagonalPencil empty_pencil(const std::vector<std::size_t>& nodes, std::size_t lo,
+                               std::size_t hi) {
+  TridiagonalPencil p;
+  p.k_diag.assign(hi - lo, 0.0);
+  p.m_diag.assign(hi - lo, 0.0);
+  p.k_off.assign(hi - lo - 1, 0.0);
+  p.m_off.assign(hi - lo - 1, 0.0);
+  p.node.assign(nodes.begin() + static_cast<std::ptrdiff_t>(lo),
+                nodes.begin() + static_cast<std::ptrdiff_t>(hi));
+  return p;
+}
+
+/// The boundary terms of `f` added to the pencil of unknowns lo .. hi - 1 of nn mesh nodes.
+void add_boundary_terms(const WeakForm& f, std::size_t lo, std::size_t hi, std::size_t nn,
+                        TridiagonalPencil& p) {
+  if (lo == 0) {
+    p.k_diag.front() += f.k_first;
+    p.m_diag.front() += f.m_first;
+  }
+  if (hi == nn) {
+    p.k_diag.back() += f.k_last;
+    p.m_diag.back() += f.m_last;
   }
 }
 
@@ -338,13 +400,7 @@ TridiagonalPencil assemble(const WeakForm& f, const MeshSelection& mesh) {
   const std::size_t lo = mesh.fix_first ? 1 : 0;
   const std::size_t hi = mesh.fix_last ? nn - 1 : nn; // one past the last unknown
   if (hi <= lo + 1) throw UsageError("finite-element mesh: fewer than 2 unknowns remain");
-  TridiagonalPencil p;
-  p.k_diag.assign(hi - lo, 0.0);
-  p.m_diag.assign(hi - lo, 0.0);
-  p.k_off.assign(hi - lo - 1, 0.0);
-  p.m_off.assign(hi - lo - 1, 0.0);
-  p.node.assign(nodes.begin() + static_cast<std::ptrdiff_t>(lo),
-                nodes.begin() + static_cast<std::ptrdiff_t>(hi));
+  TridiagonalPencil p = empty_pencil(nodes, lo, hi);
   switch (f.points_per_interval) {
   case 1: add_elements<1>(f, nodes, lo, hi, p); break;
   case 2: add_elements<2>(f, nodes, lo, hi, p); break;
@@ -355,15 +411,45 @@ TridiagonalPencil assemble(const WeakForm& f, const MeshSelection& mesh) {
     throw UsageError("quadrature points per interval: expected 1..5, got " +
                      std::to_string(f.points_per_interval));
   }
-  if (lo == 0) {
-    p.k_diag.front() += f.k_first;
-    p.m_diag.front() += f.m_first;
-  }
-  if (hi == nn) {
-    p.k_diag.back() += f.k_last;
-    p.m_diag.back() += f.m_last;
-  }
+  add_boundary_terms(f, lo, hi, nn, p);
   return p;
+}
+
+ModelPencil assemble_stellar_form(const Structure& s, SurfaceCondition surface, bool fix_first) {
+  // make_stellar_form's sampling and add_elements' integration on all base nodes, fused: the
+  // same arithmetic on the same numbers (the point's x, weight and coefficients as
+  // make_stellar_form stores them), so the pencil is assemble's bit for bit.
+  ModelPencil out;
+  out.x = stellar_mesh(s);
+  const std::vector<double>& x = out.x;
+  const std::size_t ni = x.size() - 1, nn = x.size();
+  const std::size_t lo = fix_first ? 1 : 0, hi = nn;
+  if (hi <= lo + 1) throw UsageError("finite-element mesh: fewer than 2 unknowns remain");
+  out.pencil = empty_pencil(all_nodes(ni), lo, hi);
+  TridiagonalPencil& p = out.pencil;
+  const StellarUnits units = stellar_units(s);
+  constexpr auto q = static_cast<std::size_t>(default_quadrature_points);
+  const GaussRule g = gauss_rule(default_quadrature_points);
+  std::array<StructureValues, form_block * q> values;
+  for (std::size_t i0 = 0; i0 < ni; i0 += form_block) {
+    const std::size_t i1 = std::min(ni, i0 + form_block);
+    s.values_at_rule(i0, i1, g.t.data(), q, values.data());
+    for (std::size_t i = i0; i < i1; ++i) {
+      const double xi = x[i], xr = x[i + 1], hx = xr - xi;
+      const double inv_h = 1.0 / hx, inv_h2 = inv_h * inv_h;
+      ElementSums sums;
+      for (std::size_t k = 0; k < q; ++k) {
+        const double xq = xi + g.t[k] * hx;
+        const FormCoefficients c = stellar_coefficients(values[(i - i0) * q + k], xq, units);
+        sums.add(xq, xr, inv_h, inv_h2, g.w[k] * hx, c.a, c.b, c.c, c.d);
+      }
+      sums.scatter(i, lo, hi, p);
+    }
+  }
+  WeakForm ends; // the boundary terms, as make_stellar_form sets them
+  set_surface_terms(ends, s, surface, units);
+  add_boundary_terms(ends, lo, hi, nn, p);
+  return out;
 }
 
 int inertia_below(const TridiagonalPencil& p, double s) {

@@ -1063,11 +1063,11 @@ namespace {
 /// without divisions.
 std::vector<double> interpolation_change(const Structure& s, const Structure& half,
                                          const std::vector<std::size_t>& kept,
-                                         const WeakForm& form, const TridiagonalPencil& pf,
+                                         const std::vector<double>& x,
+                                         const TridiagonalPencil& pf,
                                          const std::vector<PencilEigenpair>& pairs) {
   const StellarUnits units = stellar_units(s);
   const std::size_t offset = pf.node.front(); // 1 with a rigid inner node
-  const std::vector<double>& x = form.x;
   const std::vector<double>& r = s.node_r();
   const std::vector<double>& half_r = half.node_r();
   const std::size_t n_modes = pairs.size();
@@ -1209,9 +1209,10 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
   const Structure s(model, options.inner);
   const double unit = omega2_unit(s);
   const bool rigid = options.inner == InnerCondition::rigid;
-  const WeakForm form = make_stellar_form(s, options.surface);
-  const MeshSelection fine{all_nodes(form), rigid, false};
-  const TridiagonalPencil pf = assemble(form, fine);
+  // The model mesh's pencil, assembled while the form is sampled (form.x: the base mesh).
+  const ModelPencil form = assemble_stellar_form(s, options.surface, rigid);
+  const MeshSelection fine{all_nodes(form.x.size() - 1), rigid, false};
+  const TridiagonalPencil& pf = form.pencil;
 
   // Target indices [i0, i1): eigenvalue index = inertia count.
   Engine eng(pf);
@@ -1277,7 +1278,7 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
   std::vector<double> dlambda;
   if (options.richardson && coarse)
     if (const auto half = every_other_row(s))
-      dlambda = interpolation_change(s, *half, coarse->nodes, form, pf, sf.pairs);
+      dlambda = interpolation_change(s, *half, coarse->nodes, form.x, pf, sf.pairs);
 
   std::vector<double> errors; // per pair, pencil units
   for (auto& e : sf.pairs) {

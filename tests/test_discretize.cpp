@@ -155,13 +155,10 @@ TEST_CASE("form from another structure: its coefficients at the same radii") {
   }
 }
 
-TEST_CASE("every_other_row equals the structure of the same rows prepared from scratch") {
-  // every_other_row prepares its subset directly (no second validation); the result must be
-  // the one the public constructor gives for the same table. Model with a discontinuity.
-  GeneratorOptions g;
-  g.points = 101;
-  StellarModel m = make_polytrope(1.5, g);
-  const std::size_t k = 40; // repeat row k with a denser outer side: a discontinuity
+namespace {
+
+/// `m` with row k repeated and the density above it halved: a composition discontinuity.
+StellarModel with_discontinuity(StellarModel m, std::size_t k) {
   for (auto* v : {&m.r, &m.m, &m.P, &m.rho, &m.gamma1})
     v->insert(v->begin() + static_cast<std::ptrdiff_t>(k) + 1, (*v)[k]);
   for (auto* v : {&m.T, &m.L, &m.nabla_ad, &m.u})
@@ -169,6 +166,18 @@ TEST_CASE("every_other_row equals the structure of the same rows prepared from s
   m.extra.clear();
   m.line.clear();
   for (std::size_t j = k + 1; j < m.size(); ++j) m.rho[j] *= 0.5;
+  return m;
+}
+
+} // namespace
+
+TEST_CASE("every_other_row equals the structure of the same rows prepared from scratch") {
+  // every_other_row prepares its subset directly (no second validation); the result must be
+  // the one the public constructor gives for the same table. Model with a discontinuity.
+  GeneratorOptions g;
+  g.points = 101;
+  const std::size_t k = 40;
+  const StellarModel m = with_discontinuity(make_polytrope(1.5, g), k);
   const Structure s(m);
   REQUIRE(s.discontinuity()[k]);
   CHECK(s.discontinuity_nodes() == flagged_nodes(s.discontinuity()));
@@ -224,6 +233,33 @@ TEST_CASE("Dirichlet ends remove exactly the end rows and columns of the free pe
       CHECK(fixed.m_off[j] == free.m_off[j + 1]);
     }
   }
+}
+
+TEST_CASE("assemble_stellar_form: the pencil of make_stellar_form + assemble, bit for bit") {
+  // The fused sampling + assembly on the model mesh promises assemble's numbers exactly (the
+  // textbook check of the assembly itself is the -u'' test above). Cases: a polytrope with a
+  // density discontinuity and a zero-density surface (power-law shape), an envelope extended
+  // to the centre, both surface conditions, the inner node free and removed.
+  GeneratorOptions g;
+  g.points = 157; // not a multiple of the block of intervals evaluated together
+  const StellarModel disc = with_discontinuity(make_polytrope(1.5, g), 60);
+  const StellarModel envelope = test::uniform_sphere(test::uniform_mesh(45, 0.3), 1.4);
+  for (const StellarModel* model : std::array<const StellarModel*, 2>{&disc, &envelope})
+    for (const InnerCondition inner : {InnerCondition::centre, InnerCondition::rigid})
+      for (const SurfaceCondition surface : {SurfaceCondition::regular,
+                                             SurfaceCondition::fixed_pressure}) {
+        const Structure s(*model, inner);
+        const bool rigid = inner == InnerCondition::rigid;
+        const WeakForm f = make_stellar_form(s, surface);
+        const TridiagonalPencil ref = assemble(f, {all_nodes(f), rigid, false});
+        const ModelPencil fused = assemble_stellar_form(s, surface, rigid);
+        CHECK(fused.x == f.x);
+        CHECK(fused.pencil.node == ref.node);
+        CHECK(fused.pencil.k_diag == ref.k_diag);
+        CHECK(fused.pencil.m_diag == ref.m_diag);
+        CHECK(fused.pencil.k_off == ref.k_off);
+        CHECK(fused.pencil.m_off == ref.m_off);
+      }
 }
 
 TEST_CASE("every_other_node keeps the ends and the flagged nodes") {

@@ -137,6 +137,8 @@ struct MeshSelection {
 
 /// All base nodes.
 std::vector<std::size_t> all_nodes(const WeakForm& form);
+/// All nodes of a mesh of last + 1 nodes: 0 .. last.
+std::vector<std::size_t> all_nodes(std::size_t last);
 /// Every other base node, always keeping the first, the last and every node flagged in
 /// `keep` (e.g. discontinuities; empty = none): elements span two base intervals, except
 /// one single-interval element at the inner end of each stretch between kept nodes that has
@@ -154,6 +156,17 @@ std::vector<std::size_t> flagged_nodes(const std::vector<bool>& flags);
 /// Galerkin assembly of the pencil on the selected mesh. O(number of quadrature points).
 /// Throws UsageError for an invalid selection.
 TridiagonalPencil assemble(const WeakForm& form, const MeshSelection& mesh);
+
+/// The stellar form's pencil on the model mesh, without keeping the sampled form: the base
+/// mesh x (make_stellar_form's) and the pencil assemble(make_stellar_form(structure, surface),
+/// {all_nodes, fix_first, false}) builds, the same numbers bit for bit, in one pass (the
+/// per-point arrays of WeakForm are neither allocated nor stored and read back).
+struct ModelPencil {
+  std::vector<double> x;    ///< base mesh, structure.node_r() / R
+  TridiagonalPencil pencil; ///< on all base nodes; the first removed when fix_first
+};
+ModelPencil assemble_stellar_form(const Structure& structure, SurfaceCondition surface,
+                                  bool fix_first);
 
 /// Number of negative pivots of LDL^T(K - s M) = number of eigenvalues below s (Sylvester's
 /// law of inertia). O(N), no allocation. A zero pivot is replaced by a tiny negative one, so

@@ -213,6 +213,12 @@ void Structure::prepare(bool rows_known) {
       iv.P = lin;
     }
   }
+  m_common.resize(count);
+  for (std::size_t i = 0; i < count; ++i) {
+    const Interval& iv = m_iv[i];
+    m_common[i] = m_mid_known[i] && iv.m.shape == Shape::hermite &&
+                  iv.P.shape == Shape::log_hermite && iv.rho.shape == Shape::log_hermite;
+  }
 }
 
 bool Structure::shape_for(Curve& out, double f0, double f1, double g0, double g1, double lf0,
@@ -279,6 +285,23 @@ void Structure::values_at_rule_fixed(std::size_t first, std::size_t last, const 
     for (std::size_t i = i0; i < i1; ++i) {
       const Interval& iv = m_iv[i];
       StructureValues* o = out + (i - first) * Q;
+      if (m_common[i]) { // the common shapes, without looking at them (value()'s arithmetic)
+        for (std::size_t l = 0; l < Q; ++l) {
+          if (row[l]) {
+            o[l] = values_at(i, t[l]);
+          } else if (half[l]) {
+            o[l] = m_mid[i];
+          } else {
+            o[l].m = hermite(iv.m, b[l]);
+            o[l].gamma1 = (1.0 - t[l]) * iv.g0 + t[l] * iv.g1;
+            arg[ne] = hermite(iv.P, b[l]);
+            dest[ne++] = &o[l].P;
+            arg[ne] = hermite(iv.rho, b[l]);
+            dest[ne++] = &o[l].rho;
+          }
+        }
+        continue;
+      }
       const bool mid_known = m_mid_known[i] != 0;
       for (std::size_t l = 0; l < Q; ++l) {
         direct[l] = row[l] || (half[l] && mid_known);
@@ -316,6 +339,14 @@ void Structure::log_values_at(const std::size_t* interval, const double* t, std:
       if (log_argument(m_iv[i].P, 0.5, mid, out[k].P)) flags |= log_P;
       if (log_argument(m_iv[i].rho, 0.5, mid, out[k].rho)) flags |= log_rho;
       logs[k] = static_cast<unsigned char>(flags);
+    } else if (m_common[i] && t[k] > 0.0 && t[k] < 1.0) { // log_values, shapes known
+      const Interval& iv = m_iv[i];
+      const Basis b = basis(t[k]);
+      out[k].m = hermite(iv.m, b);
+      out[k].gamma1 = (1.0 - t[k]) * iv.g0 + t[k] * iv.g1;
+      out[k].P = hermite(iv.P, b);
+      out[k].rho = hermite(iv.rho, b);
+      logs[k] = log_P | log_rho;
     } else {
       logs[k] = static_cast<unsigned char>(log_values(i, t[k], out[k]));
     }
@@ -383,11 +414,10 @@ inline std::pair<double, double> Structure::eval(const Curve& c, double t, const
     return {v, t < 1.0 ? -c.g0 * v / (1.0 - t) : 0.0};
   }
   case Shape::hermite:
-    return {b.h00 * c.f0 + b.h10 * c.g0 + b.h01 * c.f1 + b.h11 * c.g1,
-            b.d00 * c.f0 + b.d10 * c.g0 + b.d01 * c.f1 + b.d11 * c.g1};
+    return {hermite(c, b), b.d00 * c.f0 + b.d10 * c.g0 + b.d01 * c.f1 + b.d11 * c.g1};
   case Shape::log_hermite:
   default: {
-    const double v = std::exp(b.h00 * c.f0 + b.h10 * c.g0 + b.h01 * c.f1 + b.h11 * c.g1);
+    const double v = std::exp(hermite(c, b));
     return {v, v * (b.d00 * c.f0 + b.d10 * c.g0 + b.d01 * c.f1 + b.d11 * c.g1)};
   }
   }

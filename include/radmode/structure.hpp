@@ -182,9 +182,13 @@ private:
                         double lf1, double lg0, double lg1, bool pressure);
   /// For a log-space curve (log_hermite, log_linear): its log at t into `arg` (exp(arg) is
   /// value(c, t, b), bit for bit) and true; false otherwise (arg untouched).
+  /// The cubic Hermite combination of c's end values and slopes at the point of b.
+  static double hermite(const Curve& c, const Basis& b) {
+    return b.h00 * c.f0 + b.h10 * c.g0 + b.h01 * c.f1 + b.h11 * c.g1;
+  }
   static bool log_argument(const Curve& c, double t, const Basis& b, double& arg) {
     if (c.shape == Shape::log_hermite) {
-      arg = b.h00 * c.f0 + b.h10 * c.g0 + b.h01 * c.f1 + b.h11 * c.g1;
+      arg = hermite(c, b);
       return true;
     }
     if (c.shape == Shape::log_linear) {
@@ -218,6 +222,9 @@ private:
   /// not in Interval: a larger record measurably slowed the preparation).
   std::vector<StructureValues> m_mid;
   std::vector<unsigned char> m_mid_known;
+  /// Per interval: the common shapes of a smooth model (m hermite, P and rho log_hermite, the
+  /// midpoint values kept), evaluated by the samplers without looking at the shapes.
+  std::vector<unsigned char> m_common;
   std::vector<double> m_node_r;
   std::vector<bool> m_discontinuity;
   std::vector<std::size_t> m_discontinuity_nodes;
@@ -243,10 +250,10 @@ inline double Structure::value(const Curve& c, double t, const Basis& b) {
   case Shape::power_to_zero:
     return c.f0 * std::pow(1.0 - t, c.g0);
   case Shape::hermite:
-    return b.h00 * c.f0 + b.h10 * c.g0 + b.h01 * c.f1 + b.h11 * c.g1;
+    return hermite(c, b);
   case Shape::log_hermite:
   default:
-    return std::exp(b.h00 * c.f0 + b.h10 * c.g0 + b.h01 * c.f1 + b.h11 * c.g1);
+    return std::exp(hermite(c, b));
   }
 }
 

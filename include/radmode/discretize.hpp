@@ -69,15 +69,30 @@ StellarUnits stellar_units(const Structure& structure);
 /// The stellar form's coefficients a, b, c, d (see the file comment) at x = r/R from the
 /// structure's values there: the one formula behind make_stellar_form, also used to measure
 /// how the coefficients change with the interpolation.
+namespace detail {
+/// stellar_coefficients' arithmetic on a number type T: double, or a vector of doubles (GCC
+/// and Clang vector extension) evaluating several points at once, each lane with exactly the
+/// operations of the double version.
+template <class T> struct CoefficientsOf {
+  T a, b, c, d;
+};
+template <class T>
+inline CoefficientsOf<T> stellar_coefficients_of(T m_g, T P_cgs, T rho_cgs, T gamma1, T x,
+                                                 const StellarUnits& u) {
+  const T P = P_cgs * u.inv_P, rho = rho_cgs * u.inv_rho, m = m_g * u.inv_M;
+  const T gp = gamma1 * P, x2 = x * x;
+  return {gp * x2 * x2, 3.0 * gp * x2 * x, 9.0 * gp * x2 - 4.0 * m * rho * x, rho * x2 * x2};
+}
+} // namespace detail
+
 inline FormCoefficients stellar_coefficients(const StructureValues& v, double x,
                                              const StellarUnits& u) {
-  const double P = v.P * u.inv_P, rho = v.rho * u.inv_rho, m = v.m * u.inv_M;
-  const double gp = v.gamma1 * P, x2 = x * x;
+  const auto k = detail::stellar_coefficients_of(v.m, v.P, v.rho, v.gamma1, x, u);
   FormCoefficients c;
-  c.a = gp * x2 * x2;
-  c.b = 3.0 * gp * x2 * x;
-  c.c = 9.0 * gp * x2 - 4.0 * m * rho * x;
-  c.d = rho * x2 * x2;
+  c.a = k.a;
+  c.b = k.b;
+  c.c = k.c;
+  c.d = k.d;
   return c;
 }
 

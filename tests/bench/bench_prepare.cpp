@@ -10,6 +10,8 @@
 //   form_from_half   make_stellar_form(s, regular, &half)     (interpolation-error estimate)
 //   assemble_fine    assemble(form, all nodes)
 //   assemble_coarse  assemble(form, every other node)
+//   model_pencil     assemble_stellar_form(s, regular, false) (what solve_modes runs in
+//                    place of form + assemble_fine)
 //   all              all of them in a row: structure, form, every_other_row, form from
 //                    it, three pencils (fine and coarse from the form, fine from the other)
 //   solve_modes      solve_modes(model), 5 modes, default options
@@ -99,6 +101,8 @@ int main(int argc, char** argv) {
       [&] { sink += make_stellar_form(s, SurfaceCondition::regular, &*half).a[1]; });
   row("assemble_fine", [&] { sink += assemble(form, fine).k_diag[1]; });
   row("assemble_coarse", [&] { sink += assemble(form, coarse).k_diag[1]; });
+  row("model_pencil",
+      [&] { sink += assemble_stellar_form(s, SurfaceCondition::regular, false).pencil.k_diag[1]; });
   row("all", [&] {
     const Structure t(model);
     const WeakForm f = make_stellar_form(t, SurfaceCondition::regular);

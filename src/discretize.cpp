@@ -2,6 +2,7 @@
 
 #include "radmode/constants.hpp"
 #include "radmode/error.hpp"
+#include "pair.hpp"
 
 #include <algorithm>
 #include <array>
@@ -299,10 +300,7 @@ std::optional<Structure> every_other_row(const Structure& s) {
 
 namespace {
 
-/// Two doubles handled by one instruction (GCC and Clang vector extension; SSE2 on x86-64):
-/// elementwise arithmetic, a scalar operand applies to both lanes, and each lane computes
-/// exactly what the same expression on doubles computes.
-typedef double Pair __attribute__((vector_size(16)));
+using detail::Pair; // two doubles per instruction, each lane the double arithmetic
 
 /// Element integrals of the hat functions (left l, right r) of one element, summed over its
 /// quadrature points; T = double, or Pair for two elements at once.

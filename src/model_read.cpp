@@ -522,6 +522,13 @@ private:
   void set_up_native(std::string_view header);
   void set_up_mapped(std::string_view first, bool& first_is_data);
   void read_row(std::string_view line);
+  /// The row that starts at `p` when it is plain: every field a number that scan_number
+  /// converts, exactly as many fields as targets, blanks between them, then the line end; its
+  /// values are stored in place and the position after its line is returned. Anything else
+  /// (a comment, a blank line, a field for parse_number, a field count that does not match,
+  /// no room for the row) returns nullptr having counted nothing: the general path
+  /// (next_line, classify, read_row) then reads the same line again.
+  const char* read_plain_row(const char* p);
   /// Room for at least one more row in every value array and in the line numbers.
   void grow(std::string_view line);
   /// Converts the field starting at `begin` for `target` into `out` (its place in the row
@@ -546,6 +553,8 @@ private:
   std::vector<double*> m_out;
   std::size_t m_rows = 0;
   std::size_t m_capacity = 0;
+  /// Every field of a row is read, without a unit: rows may go through read_plain_row.
+  bool m_plain_targets = false;
 };
 
 bool TableReader::next_line(std::string_view& line) {
@@ -787,6 +796,30 @@ void TableReader::read_row(std::string_view line) {
   ++m_rows;
 }
 
+const char* TableReader::read_plain_row(const char* p) {
+  if (m_rows == m_capacity) return nullptr;
+  // Bounded by the end of the text rather than the line: the line end '\n' is neither a
+  // blank nor part of a number, so no field reaches past it. This saves finding the line end
+  // first (memchr) and classifying the line.
+  const char* const end = m_text.data() + m_text.size();
+  const std::size_t n_targets = m_targets.size();
+  const Target* const targets = m_targets.data();
+  double* const* const out = m_out.data();
+  const std::size_t row = m_rows;
+  for (std::size_t column = 0; column < n_targets; ++column) {
+    while (p != end && is_blank_char(*p)) ++p;
+    const Scanned scanned = scan_number(p, end);
+    if (scanned.stop == nullptr ||
+        (scanned.stop != end && !is_blank_char(*scanned.stop) && *scanned.stop != '\n'))
+      return nullptr;
+    out[targets[column].slot][row] = scanned.value;
+    p = scanned.stop;
+  }
+  while (p != end && is_blank_char(*p)) ++p;
+  if (p == end) return p;
+  return *p == '\n' ? p + 1 : nullptr;
+}
+
 StellarModel TableReader::read() {
   const bool mapped = !m_options.columns.empty();
   if (mapped) m_options.validate();
@@ -796,7 +829,18 @@ StellarModel TableReader::read() {
     if (!next_line(line)) break;
 
   bool set_up = false;
-  while (next_line(line)) {
+  const char* const text = m_text.data();
+  while (true) {
+    if (m_plain_targets && m_pos < m_text.size()) {
+      if (const char* next = read_plain_row(text + m_pos)) {
+        ++m_line_no;
+        m_lines[m_rows] = m_line_no;
+        ++m_rows;
+        m_pos = static_cast<std::size_t>(next - text);
+        continue;
+      }
+    }
+    if (!next_line(line)) break;
     switch (classify(line)) {
     case LineType::blank:
       continue;
@@ -819,6 +863,9 @@ StellarModel TableReader::read() {
         set_up_mapped(line, first_is_data);
       else
         set_up_native(line);
+      m_plain_targets = std::all_of(m_targets.begin(), m_targets.end(), [](const Target& t) {
+        return t.slot != ignored && !t.scaled;
+      });
       if (!first_is_data) continue;
     }
     read_row(line);

@@ -165,18 +165,19 @@ bool all_digits(U v) {
 
 /// The value of eight digit bytes: neighbouring digits, then pairs, then quadruples combined
 /// in place (no lane overflows: 99, 9999 and 99999999 fit their 8-, 16- and 32-bit lanes).
+/// Each step x * (B 2^s + 1) >> s adds B times a lane to its upper neighbour in one
+/// multiplication (the digits' low nibbles first: every byte is a digit). From memory, the
+/// form used by Lemire's parsers.
 std::uint64_t eight_digit_value(std::uint64_t v) {
-  v -= every_byte<std::uint64_t>('0');
-  v = (v * 10 + (v >> 8)) & 0x00ff00ff00ff00ffu;
-  v = (v * 100 + (v >> 16)) & 0x0000ffff0000ffffu;
-  return (v * 10000 + (v >> 32)) & 0xffffffffu;
+  v = ((v & every_byte<std::uint64_t>(0x0f)) * (10 * 0x100 + 1)) >> 8;
+  v = ((v & 0x00ff00ff00ff00ffu) * (100 * 0x10000 + 1)) >> 16;
+  return ((v & 0x0000ffff0000ffffu) * (10000 * 0x100000000u + 1)) >> 32;
 }
 
 /// The same for four digit bytes.
 std::uint32_t four_digit_value(std::uint32_t v) {
-  v -= every_byte<std::uint32_t>('0');
-  v = (v * 10 + (v >> 8)) & 0x00ff00ffu;
-  return (v * 100 + (v >> 16)) & 0xffffu;
+  v = ((v & every_byte<std::uint32_t>(0x0f)) * (10 * 0x100 + 1)) >> 8;
+  return ((v & 0x00ff00ffu) * (100 * 0x10000 + 1)) >> 16;
 }
 
 constexpr int max_digits = 19; // 10^19 - 1 < 2^64
@@ -322,23 +323,23 @@ bool eisel_lemire(std::uint64_t w, int k, bool negative, double& out) {
   // P < 2^192 has its top bit at 191 or 190; keep 54 bits (53 + the round bit).
   std::uint64_t high = static_cast<std::uint64_t>(upper >> 64);
   int rest_bits = 9 + static_cast<int>(high >> 63);
-  std::uint64_t rest_mask = (std::uint64_t{1} << rest_bits) - 1;
-  std::uint64_t rest_high = high & rest_mask;
   std::uint64_t m = high >> rest_bits; // in [2^53, 2^54)
   // The low product w t.low adds less than 2^64 to bits 64..127, so at most 1 to `high`. When
   // the high word's bits below the round bit are neither all zeros nor all ones, that carry
   // changes neither m nor the top bit, the decline below needs a middle word of all ones (not
   // reachable after a carry) and the tie test needs those bits zero: the low product changes
-  // nothing and is formed only otherwise (about 2 numbers in 512).
-  if (rest_high == 0 || rest_high == rest_mask) {
+  // nothing and is formed only otherwise (about 2 numbers in 512). Tested on the lowest 9 of
+  // those 9 or 10 bits (all zeros or all ones: (bits + 1) & 0x1fe == 0), which holds whenever
+  // the test on all of them does, without waiting for the top bit.
+  if (((high + 1) & 0x1feu) == 0) {
     const u128 lower = u128{w} * t.low; // bits 0..127 of P
     const u128 middle_sum = (upper & ~std::uint64_t{0}) + (lower >> 64);
     const std::uint64_t low = static_cast<std::uint64_t>(lower);
     const std::uint64_t middle = static_cast<std::uint64_t>(middle_sum);
     high += static_cast<std::uint64_t>(middle_sum >> 64);
     rest_bits = 9 + static_cast<int>(high >> 63);
-    rest_mask = (std::uint64_t{1} << rest_bits) - 1;
-    rest_high = high & rest_mask;
+    const std::uint64_t rest_mask = (std::uint64_t{1} << rest_bits) - 1;
+    const std::uint64_t rest_high = high & rest_mask;
     if (rest_high == rest_mask && middle == ~std::uint64_t{0}) return false;
     m = high >> rest_bits;
     if ((rest_high | middle | low) == 0 && (m & 1) != 0) { // (the rare test first: no guess)

@@ -8,6 +8,7 @@
 // Hard cases: decimal numbers on, just below and just above the midpoints between two
 // neighbouring doubles, whose exact decimal expansions come from glibc's printf (exact for
 // any precision; the test checks the trailing zeros that prove it).
+#include "radmode/error.hpp"
 #include "radmode/model_io.hpp"
 
 #include "support.hpp"
@@ -19,8 +20,12 @@
 #include <cstdint>
 #include <cstdio>
 #include <cstdlib>
+#include <cstring>
+#include <memory>
+#include <optional>
 #include <random>
 #include <string>
+#include <string_view>
 #include <vector>
 
 using namespace radmode;
@@ -358,4 +363,123 @@ TEST_CASE("One digit before the point: short and long forms agree with from_char
   // them as well, or stops before their end).
   for (const char* t : {"1.5x", "1.e", "1.-5", "1..5", "-.", "0.5e+", "1.5 2"})
     CHECK_MESSAGE(!parse_number(t), t);
+}
+
+namespace {
+
+/// parse_number on a copy of `token` in a heap block of exactly its size (no terminating
+/// NUL, nothing readable after the last character: an over-read is an ASan error).
+std::optional<double> parse_exact_copy(const std::string& token) {
+  const std::unique_ptr<char[]> block(new char[token.size()]);
+  std::memcpy(block.get(), token.data(), token.size());
+  return parse_number(std::string_view(block.get(), token.size()));
+}
+
+/// A ten-row table whose last field (Gamma1 of the last row, no newline after it) is `last`,
+/// parsed from a heap block of exactly its size.
+StellarModel parse_ending_with(const std::string& last) {
+  std::string text = "r m P rho Gamma1\n";
+  for (int i = 0; i < 10; ++i)
+    text += std::to_string(i) + " " + std::to_string(i * i * i) + " " + std::to_string(20 - i) +
+            " 2 " + (i < 9 ? "1.6\n" : last);
+  const std::unique_ptr<char[]> block(new char[text.size()]);
+  std::memcpy(block.get(), text.data(), text.size());
+  return parse_model(std::string_view(block.get(), text.size()), "end.txt");
+}
+
+} // namespace
+
+TEST_CASE("Digit runs of 1 to 20 digits: eight- and four-digit steps and the byte loop") {
+  // The reader takes digits eight, then four, then one at a time (src/model_read.cpp); every
+  // run length 1..20 before and after the point, with and without leading zeros, ends each
+  // step at every offset. Reference: std::from_chars, bit for bit; each token is parsed from
+  // a block of exactly its size (the number ends at the very end of the buffer).
+  std::mt19937_64 rng(8);
+  const auto digits = [&rng](int n, bool lead_zeros) {
+    std::string s;
+    for (int i = 0; i < n; ++i)
+      s += static_cast<char>(lead_zeros && i < n / 2 ? '0' : '0' + static_cast<int>(rng() % 10));
+    return s;
+  };
+  std::size_t checked = 0, mismatches = 0;
+  for (int n = 1; n <= 20; ++n)
+    for (int m = 0; m <= 20; ++m)
+      for (int variant = 0; variant < 4; ++variant) {
+        std::string token = digits(n, variant == 1);
+        if (m > 0 || variant == 2) token += "." + digits(m, variant == 3);
+        if (variant == 2) token += "e-7";
+        const double expected = reference(token);
+        const auto value = parse_exact_copy(token);
+        ++checked;
+        if (!value || bits_of(*value) != bits_of(expected)) {
+          ++mismatches;
+          FAIL_CHECK(token);
+        }
+      }
+  CHECK(checked == 20 * 21 * 4);
+  CHECK(mismatches == 0);
+}
+
+TEST_CASE("Digit runs: a non-digit at each of the eight places of a load ends the run there") {
+  // Characters just outside '0'..'9' ('/' = 0x2f, ':' = 0x3a, '?' = 0x3f), with the high bit
+  // set over a digit (0xb5), NUL, and characters of the grammar that end a run ('.', 'e',
+  // blank). A run of 12 digits with the stop character at place j (0..8 from the start of
+  // the integer part or of the fraction): the number is either refused, or read up to that
+  // character in a table row.
+  const std::string run = "123456789012";
+  std::size_t refused = 0;
+  for (int in_fraction = 0; in_fraction < 2; ++in_fraction)
+    for (std::size_t j = 0; j <= 8; ++j)
+      for (const char stop : {'/', ':', '?', '\xb5', '\0'}) {
+        std::string token = in_fraction ? "7." + run : run;
+        const std::size_t at = (in_fraction ? 2 : 0) + j;
+        token[at] = stop;
+        const auto value = parse_exact_copy(token);
+        CHECK_MESSAGE(!value, "place " << j << " char " << int(stop));
+        refused += !value;
+        // In a table row the field is a bad number (not a shorter number).
+        const std::string text = "r m P rho Gamma1\n0 0 10 2 1.6\n1 1 9 " + token + " 1.6\n";
+        try {
+          (void)parse_model(text, "stop.txt");
+          FAIL_CHECK("accepted: place " << j << " char " << int(stop));
+        } catch (const InputError& e) {
+          CHECK(e.kind() == ErrorKind::bad_number);
+        }
+      }
+  CHECK(refused == 2 * 9 * 5);
+  // A blank at each place ends the number there (the rest is the next field; the row then
+  // has six fields). '.' or 'e' after the run read so far gives the value of the shorter text.
+  for (std::size_t j = 1; j <= 8; ++j) {
+    const std::string head = run.substr(0, j);
+    for (const std::string& tail : {std::string("."), std::string(".5"), std::string("e2")}) {
+      const std::string token = head + tail;
+      const auto value = parse_exact_copy(token);
+      REQUIRE_MESSAGE(value, token);
+      CHECK_MESSAGE(bits_of(*value) == bits_of(reference(token)), token);
+    }
+    const std::string row = "1 1 " + head + " " + run.substr(j) + " 2 1.6\n";
+    try {
+      (void)parse_model("r m P rho Gamma1\n0 0 10 2 1.6\n" + row, "blank.txt");
+      FAIL_CHECK("six fields accepted: " << row);
+    } catch (const InputError& e) {
+      CHECK(e.kind() == ErrorKind::bad_format);
+    }
+  }
+}
+
+TEST_CASE("Digit runs: numbers that end the text, 1 to 20 digits") {
+  // The last field of a table read from a block that ends right after it (no newline): every
+  // length, with a point in several places, and leading zeros.
+  std::mt19937_64 rng(81);
+  for (int n = 1; n <= 20; ++n)
+    for (int point = -1; point < n; point += 3) {
+      std::string token = "1";
+      for (int i = 1; i < n; ++i) token += static_cast<char>('0' + rng() % 10);
+      if (point >= 0) token.insert(static_cast<std::size_t>(point) + 1, ".");
+      for (const std::string& t : {token, "000" + token}) {
+        const auto model = parse_ending_with(t);
+        REQUIRE(model.gamma1.size() == 10);
+        CHECK_MESSAGE(bits_of(model.gamma1.back()) == bits_of(reference(t)), t);
+      }
+    }
 }

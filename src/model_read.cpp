@@ -417,8 +417,14 @@ Scanned scan_number(const char* p, const char* end) {
     }
     if (p == end || !is_digit(*p)) return not_converted; // "1e" is not a number
     int e = 0;
-    for (; p != end && is_digit(*p); ++p)
-      if (e < 100000) e = e * 10 + (*p - '0');
+    if (end - p >= 3 && is_digit(p[1]) && !is_digit(p[2])) {
+      // Two exponent digits (as %.17g writes them): no loop.
+      e = (p[0] - '0') * 10 + (p[1] - '0');
+      p += 2;
+    } else {
+      for (; p != end && is_digit(*p); ++p)
+        if (e < 100000) e = e * 10 + (*p - '0');
+    }
     k += exp_negative ? -e : e;
   }
   double out = 0.0;

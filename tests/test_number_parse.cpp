@@ -469,14 +469,16 @@ TEST_CASE("Digit runs: a non-digit at each of the eight places of a load ends th
 
 TEST_CASE("Digit runs: numbers that end the text, 1 to 20 digits") {
   // The last field of a table read from a block that ends right after it (no newline): every
-  // length, with a point in several places, and leading zeros.
+  // length, with a point in several places, leading zeros, and exponents of one to three
+  // digits (two-digit exponents have their own step).
   std::mt19937_64 rng(81);
   for (int n = 1; n <= 20; ++n)
     for (int point = -1; point < n; point += 3) {
       std::string token = "1";
       for (int i = 1; i < n; ++i) token += static_cast<char>('0' + rng() % 10);
       if (point >= 0) token.insert(static_cast<std::size_t>(point) + 1, ".");
-      for (const std::string& t : {token, "000" + token}) {
+      for (const std::string& t : {token, "000" + token, token + "e-5", token + "E+33",
+                                   token + "e12", token + "e-123"}) {
         const auto model = parse_ending_with(t);
         REQUIRE(model.gamma1.size() == 10);
         CHECK_MESSAGE(bits_of(model.gamma1.back()) == bits_of(reference(t)), t);

@@ -771,3 +771,55 @@ TEST_CASE("validate_model: every defect at every position is refused, valid edge
   for (double& v : m.m) v = 0.0;
   CHECK_THROWS_AS(validate_model(m), InputError);
 }
+
+TEST_CASE("rows read straight from the text and rows read line by line give the same model") {
+  // The reader takes rows whose every field it converts while scanning without looking for
+  // the line end first, and hands every other line to the line-by-line path (src/model_read.cpp,
+  // read_plain_row). Here plain rows alternate with rows that need the other path (a Fortran
+  // exponent, a comment after the last field, CR line ends, blank and comment lines, commas),
+  // and the first row is much longer than the others, so that the value arrays, sized from
+  // it, are grown while rows go either way. Expected values: std::strtod of each field (the C
+  // library, correctly rounded), line numbers counted by hand.
+  std::string text = "r m P rho Gamma1\n";
+  std::vector<double> r, m, p, rho;
+  std::vector<std::size_t> lines;
+  std::size_t line = 1;
+  const auto add = [&](const std::string& row, double ri, double mi, double pi, double rhoi) {
+    text += row;
+    ++line;
+    r.push_back(ri);
+    m.push_back(mi);
+    p.push_back(pi);
+    rho.push_back(rhoi);
+    lines.push_back(line);
+  };
+  add("0.000000000000000000000000000000000000000000000000000000000000 0 " + std::string(300, '0') +
+          "1000 1.000000000000000000000000000000000000000 1.6\n",
+      0.0, 0.0, 1000.0, 1.0);
+  for (int i = 1; i < 400; ++i) {
+    const std::string ri = std::to_string(i), mi = std::to_string(i * i);
+    const double pi = 1000.0 - i, rhoi = std::strtod(("1." + ri).c_str(), nullptr);
+    switch (i % 7) {
+    case 0: add(ri + " " + mi + " " + std::to_string(1000 - i) + "D0 1." + ri + " 1.6\n", i,
+                i * i, pi, rhoi); break;
+    case 1: add(ri + " " + mi + " " + std::to_string(1000 - i) + " 1." + ri + " 1.6 # c\n", i,
+                i * i, pi, rhoi); break;
+    case 2: add(ri + "," + mi + "," + std::to_string(1000 - i) + ",1." + ri + ",1.6\r\n", i,
+                i * i, pi, rhoi); break;
+    case 3:
+      text += i % 2 ? "\n" : "  # comment\n";
+      ++line;
+      [[fallthrough]];
+    default: add(ri + " " + mi + " " + std::to_string(1000 - i) + " 1." + ri + " 1.6\n", i,
+                 i * i, pi, rhoi); break;
+    }
+  }
+  text.pop_back(); // no newline after the last row
+  const auto model = parse_model(text, "mixed.txt");
+  REQUIRE(model.size() == r.size());
+  std::size_t mismatches = 0;
+  for (std::size_t k = 0; k < r.size(); ++k)
+    mismatches += model.r[k] != r[k] || model.m[k] != m[k] || model.P[k] != p[k] ||
+                  model.rho[k] != rho[k] || model.gamma1[k] != 1.6 || model.line[k] != lines[k];
+  CHECK(mismatches == 0);
+}

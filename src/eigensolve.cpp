@@ -1176,27 +1176,35 @@ std::vector<double> interpolation_change(const Structure& s, const Structure& ha
     }
     // One pass per mode over the block, elements and inner nodes (a block's end nodes are
     // kept: no change there) together; two running sums, so that the additions of
-    // neighbouring elements do not wait for each other.
+    // neighbouring elements do not wait for each other: the even and the odd elements in the
+    // two lanes of a Pair (the same operations as on doubles, lane by lane).
     const std::size_t ne = i1 - i0;
+    using detail::Pair;
+    using detail::load2;
     for (std::size_t e = 0; e < n_modes; ++e) {
       const double lambda = pairs[e].lambda;
       const double* v = u.data() + e * n_nodes + i0; // v[j] = u at node i0 + j
-      auto element = [&](std::size_t ie) {
-        const double du = v[ie + 1] - v[ie], um = 0.5 * (v[ie] + v[ie + 1]);
-        return A[ie] * du * du + Bm[ie] * um * du + (Cm[ie] - lambda * Dm[ie]) * um * um;
+      // Element ie (and ie + 1 in the second lane) and node jn (and jn + 1), on T = double
+      // or Pair, with load(p) = *p or the Pair {p[0], p[1]}.
+      auto element = [&](std::size_t ie, auto load) {
+        const auto v0 = load(v + ie), v1 = load(v + ie + 1);
+        const auto du = v1 - v0, um = 0.5 * (v0 + v1);
+        return load(&A[ie]) * du * du + load(&Bm[ie]) * um * du +
+               (load(&Cm[ie]) - lambda * load(&Dm[ie])) * um * um;
       };
-      auto node = [&](std::size_t jn) {
-        return Bn[jn] * v[jn] * (v[jn + 1] - v[jn - 1]) +
-               (Cn[jn] - lambda * Dn[jn]) * v[jn] * v[jn];
+      auto node = [&](std::size_t jn, auto load) {
+        const auto vj = load(v + jn);
+        return load(&Bn[jn]) * vj * (load(v + jn + 1) - load(v + jn - 1)) +
+               (load(&Cn[jn]) - lambda * load(&Dn[jn])) * vj * vj;
       };
-      double even = element(0), odd = 0.0;
+      const auto one = [](const double* at) { return *at; };
+      const auto two = [](const double* at) { return load2(at); };
+      Pair sums = {element(0, one), 0.0}; // lane 0: even elements, lane 1: odd
       std::size_t k = 1;
-      for (; k + 2 <= ne; k += 2) {
-        even += element(k) + node(k);
-        odd += element(k + 1) + node(k + 1);
-      }
-      if (k < ne) even += element(k) + node(k);
-      change[e] += even + odd;
+      for (; k + 2 <= ne; k += 2) sums += element(k, two) + node(k, two);
+      double even = sums[0];
+      if (k < ne) even += element(k, one) + node(k, one);
+      change[e] += even + sums[1];
     }
   }
   return change;

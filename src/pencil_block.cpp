@@ -45,36 +45,6 @@ template <class F> void for_chunks(std::size_t total, F&& chunk) {
   }
 }
 
-/// Inertia counts for B shifts: the arithmetic of inertia_below (discretize.cpp), per shift.
-/// Written without branches (the end rows apart) so that the compiler can pair the shifts'
-/// divisions in vector instructions; the operations per shift are the same, so are the counts.
-template <std::size_t B> void count_block(const TridiagonalPencil& p, const double* s, int* out) {
-  const std::size_t n = p.size();
-  const double* const kd = p.k_diag.data();
-  const double* const md = p.m_diag.data();
-  const double* const ko = p.k_off.data();
-  const double* const mo = p.m_off.data();
-  double negative[B], d[B], e_prev[B], shift[B];
-  for (std::size_t b = 0; b < B; ++b) {
-    shift[b] = s[b];
-    double piv = kd[0] - shift[b] * md[0];
-    piv = piv == 0.0 ? -1e-300 : piv;
-    negative[b] = piv < 0.0 ? 1.0 : 0.0;
-    d[b] = piv;
-  }
-  for (std::size_t j = 1; j < n; ++j) {
-    const double koj = ko[j - 1], moj = mo[j - 1], kdj = kd[j], mdj = md[j];
-    for (std::size_t b = 0; b < B; ++b) {
-      e_prev[b] = koj - shift[b] * moj;
-      double piv = (kdj - shift[b] * mdj) - e_prev[b] * e_prev[b] / d[b];
-      piv = piv == 0.0 ? -1e-300 : piv;
-      negative[b] += piv < 0.0 ? 1.0 : 0.0;
-      d[b] = piv;
-    }
-  }
-  for (std::size_t b = 0; b < B; ++b) out[b] = static_cast<int>(negative[b]);
-}
-
 constexpr std::size_t zero_mark = static_cast<std::size_t>(-1); ///< a removed end: value 0
 constexpr std::size_t end_mark = static_cast<std::size_t>(-2);  ///< ends a source list
 
@@ -144,6 +114,43 @@ Pair abs2(Pair v) {
   bits &= ~(std::uint64_t{1} << 63);
   std::memcpy(&v, &bits, sizeof v);
   return v;
+}
+
+/// Inertia counts for B shifts: the arithmetic of inertia_below (discretize.cpp), per shift,
+/// two shifts to an instruction (Pair; an odd B gets a dummy shift whose count is dropped).
+/// The operations per shift are the same, in the same order, so are the counts. Without
+/// A zero pivot becomes -1e-300 behind a branch (rare, so predicted: the select stays off the
+/// chain of dependent divisions, which bounds the speed for up to four shifts).
+template <std::size_t B> void count_block(const TridiagonalPencil& p, const double* s, int* out) {
+  constexpr std::size_t H = (B + 1) / 2;
+  typedef std::int64_t Counts __attribute__((vector_size(16)));
+  const std::size_t n = p.size();
+  const double* const kd = p.k_diag.data();
+  const double* const md = p.m_diag.data();
+  const double* const ko = p.k_off.data();
+  const double* const mo = p.m_off.data();
+  const Pair tiny = {-1e-300, -1e-300};
+  Pair shift[H], d[H];
+  Counts negative[H];
+  for (std::size_t h = 0; h < H; ++h) {
+    shift[h] = Pair{s[2 * h], 2 * h + 1 < B ? s[2 * h + 1] : 0.0};
+    Pair piv = kd[0] - shift[h] * md[0];
+    piv = piv == 0.0 ? tiny : piv;
+    negative[h] = -(piv < 0.0); // a true comparison is -1 per lane
+    d[h] = piv;
+  }
+  for (std::size_t j = 1; j < n; ++j) {
+    const double koj = ko[j - 1], moj = mo[j - 1], kdj = kd[j], mdj = md[j];
+    for (std::size_t h = 0; h < H; ++h) {
+      const Pair e_prev = koj - shift[h] * moj;
+      Pair piv = (kdj - shift[h] * mdj) - e_prev * e_prev / d[h];
+      const Counts zero = piv == 0.0;
+      if (__builtin_expect((zero[0] | zero[1]) != 0, 0)) piv = zero ? tiny : piv; // off the chain
+      negative[h] -= piv < 0.0;
+      d[h] = piv;
+    }
+  }
+  for (std::size_t b = 0; b < B; ++b) out[b] = static_cast<int>(negative[b / 2][b % 2]);
 }
 
 /// B vectors under Rayleigh quotient iteration, held interleaved (x[j * P + b], P = B rounded

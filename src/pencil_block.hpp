@@ -4,9 +4,9 @@
 //
 // Why blocks: the LDL^T recurrence of K - s M, d_j = (K - sM)_jj - e_{j-1}^2 / d_{j-1}, is a
 // chain of dependent divisions, so one factorization runs at the latency of the divider.
-// Factorizations at different shifts are independent: advancing up to four of them in the
-// same loop lets the processor overlap their divisions, and B shifts cost little more than
-// one. Every per-shift result is exactly what the one-shift code computes (same operations
+// Factorizations at different shifts are independent: advancing several of them in the same
+// loop, two to a vector instruction, lets the processor overlap their divisions, and up to
+// six shifts cost little more than one. Every per-shift result is exactly what the one-shift code computes (same operations
 // in the same order), so inertia counts do not depend on how shifts were grouped.
 #include "radmode/discretize.hpp"
 

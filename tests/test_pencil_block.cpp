@@ -8,6 +8,7 @@
 
 #include <doctest/doctest.h>
 
+#include <algorithm>
 #include <cmath>
 
 using namespace radmode;
@@ -76,6 +77,56 @@ TEST_CASE("inertia counts for many shifts at once equal the one-shift counts") {
     const std::vector<int> many = detail::inertia_below_many(d.pencil, part);
     REQUIRE(many.size() == width);
     for (std::size_t b = 0; b < width; ++b) CHECK(many[b] == inertia_below(d.pencil, part[b]));
+  }
+}
+
+TEST_CASE("inertia counts in pairs: identical to the one-shift counts near eigenvalues and at zero pivots") {
+  // Shifts within a few ulps of the closed-form eigenvalues (where the count flips), and pencils
+  // built so that a pivot is exactly zero (the first row, a middle row, the last row), so that
+  // the -1e-300 replacement is taken. Each width 1..8 groups the shifts differently.
+  const Dirichlet d(200);
+  std::vector<double> shifts{0.0, -1.0};
+  for (int k : {0, 1, 2, 17, 100, 198}) {
+    const double lk = d.exact(k);
+    double below = lk, above = lk;
+    shifts.push_back(lk);
+    for (int u = 0; u < 4; ++u) {
+      below = std::nextafter(below, 0.0);
+      above = std::nextafter(above, 1e300);
+      shifts.push_back(below);
+      shifts.push_back(above);
+    }
+    shifts.push_back(lk * (1 - 1e-12));
+    shifts.push_back(lk * (1 + 1e-12));
+  }
+  auto check_all = [](const TridiagonalPencil& p, const std::vector<double>& sh) {
+    for (std::size_t width = 1; width <= 8; ++width)
+      for (std::size_t first = 0; first < sh.size(); first += width) {
+        const std::size_t end = std::min(sh.size(), first + width);
+        const std::vector<double> part(sh.begin() + static_cast<std::ptrdiff_t>(first),
+                                       sh.begin() + static_cast<std::ptrdiff_t>(end));
+        const std::vector<int> many = detail::inertia_below_many(p, part);
+        REQUIRE(many.size() == part.size());
+        for (std::size_t b = 0; b < part.size(); ++b) {
+          CAPTURE(part[b]);
+          CHECK(many[b] == inertia_below(p, part[b]));
+        }
+      }
+  };
+  check_all(d.pencil, shifts);
+  // M = I, K tridiagonal with off-diagonals -1: at s = 0 the pivots of K = diag(1, 1, 2, 3) are
+  // 1, 0 (row 1), ...; of diag(0, 2, 2) 0 at row 0; of diag(2, 2, 0.5) -> 2, 1.5, 0.5 - 1/1.5
+  // (not exact), so s is chosen to make the last pivot exactly zero instead: diag(1, 2, 1) has
+  // pivots 1, 1, 0.
+  for (const std::vector<double>& diag : {std::vector<double>{1, 1, 2, 3}, std::vector<double>{0, 2, 2},
+                                          std::vector<double>{1, 2, 1}}) {
+    TridiagonalPencil p;
+    p.k_diag = diag;
+    p.k_off.assign(diag.size() - 1, -1.0);
+    p.m_diag.assign(diag.size(), 1.0);
+    p.m_off.assign(diag.size() - 1, 0.0);
+    for (std::size_t j = 0; j < diag.size(); ++j) p.node.push_back(j);
+    check_all(p, {0.0, -0.0, 0.5, 1.0, 2.0, -1.0, 3.0, 0.0, 4.0});
   }
 }
 

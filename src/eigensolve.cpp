@@ -1083,14 +1083,16 @@ std::vector<double> interpolation_change(const Structure& s, const Structure& ha
   // interpolate in log space, v_full expm1(ln v_half - ln v_full) (no cancellation, and no
   // exponential for the small differences: expm1 by its series below 1e-3, error < 2e-18
   // relative); else the difference of the values.
-  auto change_of = [](double half_v, bool half_log, double full_v, double full_log_v,
-                      bool full_log) {
+  // (The series on T = double or Pair: the same operations lane by lane.)
+  auto expm1_series = [](auto d) {
+    constexpr double c2 = 1.0 / 2, c3 = 1.0 / 6, c4 = 1.0 / 24, c5 = 1.0 / 120;
+    return d + d * d * (c2 + d * (c3 + d * (c4 + d * c5)));
+  };
+  auto change_of = [&](double half_v, bool half_log, double full_v, double full_log_v,
+                       bool full_log) {
     if (half_log && full_log) {
       const double d = half_v - full_log_v;
-      constexpr double c2 = 1.0 / 2, c3 = 1.0 / 6, c4 = 1.0 / 24, c5 = 1.0 / 120;
-      const double em1 = std::abs(d) < 1e-3 ? d + d * d * (c2 + d * (c3 + d * (c4 + d * c5)))
-                                            : std::expm1(d);
-      return full_v * em1;
+      return full_v * (std::abs(d) < 1e-3 ? expm1_series(d) : std::expm1(d));
     }
     return (half_log ? std::exp(half_v) : half_v) - full_v;
   };
@@ -1102,6 +1104,7 @@ std::vector<double> interpolation_change(const Structure& s, const Structure& ha
   std::array<double, max_points> at_t{}, full_t{};
   std::array<StructureValues, max_points> half_v{}, full_v{}, full_log{};
   std::array<unsigned char, max_points> half_logs{}, full_logs{};
+  std::array<double, max_points> at_x{}, ca{}, cb{}, cc{}, cd{}; // point x, coefficient changes
   // Weights per element (A du^2, Bm u_m du, Cm - lambda Dm u_m^2) and per node of the block
   // (Bn, Cn, Dn; node j at index j - first element).
   std::array<double, max_elements> A{}, Bm{}, Cm{}, Dm{}, six_h{};
@@ -1120,11 +1123,13 @@ std::vector<double> interpolation_change(const Structure& s, const Structure& ha
       for (std::size_t i = kept[k]; i < kept[k + 1]; ++i) {
         at_interval[np] = k;
         at_t[np] = (0.5 * (r[i] + r[i + 1]) - r0) * inv_span;
+        at_x[np] = 0.5 * (x[i] + x[i + 1]);
         full_interval[np] = i;
         full_t[np++] = 0.5;
         if (i + 1 != kept[k + 1]) {
           at_interval[np] = k;
           at_t[np] = (r[i + 1] - r0) * inv_span;
+          at_x[np] = x[i + 1];
           full_interval[np] = i + 1;
           full_t[np++] = 0.0;
         }
@@ -1133,8 +1138,10 @@ std::vector<double> interpolation_change(const Structure& s, const Structure& ha
     half.log_values_at(at_interval.data(), at_t.data(), np, half_v.data(), half_logs.data());
     s.log_values_at(full_interval.data(), full_t.data(), np, full_log.data(), full_logs.data(),
                     full_v.data());
-    // Changes of the coefficients -> weights.
-    auto coefficient_change = [&](std::size_t point, double xp) {
+    // Changes of the coefficients at every point; two points at a time (Pair) where both
+    // interpolate P and rho in log space on both sides with log differences below 1e-3 (the
+    // common case: the series), else one at a time.
+    auto coefficient_change = [&](std::size_t point) {
       const StructureValues& h = half_v[point];
       const StructureValues& f = full_v[point];
       const StructureValues& fl = full_log[point];
@@ -1145,8 +1152,44 @@ std::vector<double> interpolation_change(const Structure& s, const Structure& ha
                       full_logs[point] & Structure::log_P);
       d.rho = change_of(h.rho, half_logs[point] & Structure::log_rho, f.rho, fl.rho,
                         full_logs[point] & Structure::log_rho);
-      return stellar_coefficients_change(f, d, xp, units);
+      const FormCoefficients c = stellar_coefficients_change(f, d, at_x[point], units);
+      ca[point] = c.a, cb[point] = c.b, cc[point] = c.c, cd[point] = c.d;
     };
+    constexpr unsigned both_logs = Structure::log_P | Structure::log_rho;
+    auto series_point = [&](std::size_t q) {
+      return (half_logs[q] & both_logs) == both_logs && (full_logs[q] & both_logs) == both_logs &&
+             std::abs(half_v[q].P - full_log[q].P) < 1e-3 &&
+             std::abs(half_v[q].rho - full_log[q].rho) < 1e-3;
+    };
+    std::size_t q = 0;
+    for (; q + 2 <= np; q += 2) {
+      if (!series_point(q) || !series_point(q + 1)) {
+        coefficient_change(q);
+        coefficient_change(q + 1);
+        continue;
+      }
+      using detail::Pair;
+      auto pair = [&](const std::array<StructureValues, max_points>& v,
+                      double StructureValues::*field) {
+        return Pair{v[q].*field, v[q + 1].*field};
+      };
+      const Pair fm = pair(full_v, &StructureValues::m), fP = pair(full_v, &StructureValues::P),
+                 frho = pair(full_v, &StructureValues::rho),
+                 fg = pair(full_v, &StructureValues::gamma1);
+      const Pair dP = fP * expm1_series(pair(half_v, &StructureValues::P) -
+                                        pair(full_log, &StructureValues::P));
+      const Pair drho = frho * expm1_series(pair(half_v, &StructureValues::rho) -
+                                            pair(full_log, &StructureValues::rho));
+      const auto c = detail::stellar_coefficients_change_of(
+          fm, fP, frho, fg, pair(half_v, &StructureValues::m) - fm, dP, drho,
+          pair(half_v, &StructureValues::gamma1) - fg, detail::load2(&at_x[q]), units);
+      detail::store2(&ca[q], c.a);
+      detail::store2(&cb[q], c.b);
+      detail::store2(&cc[q], c.c);
+      detail::store2(&cd[q], c.d);
+    }
+    if (q < np) coefficient_change(q);
+    // -> weights.
     constexpr double third = 1.0 / 3.0, sixth = 1.0 / 6.0;
     std::size_t p = 0;
     for (std::size_t i = i0; i <= i1; ++i) Bn[i - i0] = Cn[i - i0] = Dn[i - i0] = 0.0;
@@ -1154,24 +1197,24 @@ std::vector<double> interpolation_change(const Structure& s, const Structure& ha
       double left_a = 0.0; // change of a at the element's left node (0 at a kept node)
       for (std::size_t i = kept[k]; i < kept[k + 1]; ++i) {
         const double h = x[i + 1] - x[i];
-        const FormCoefficients mid = coefficient_change(p++, 0.5 * (x[i] + x[i + 1]));
+        const std::size_t pm = p++; // the midpoint's coefficient changes
         double right_a = 0.0; // change of a at node i + 1 (0 at a kept node)
         if (i + 1 != kept[k + 1]) {
-          const FormCoefficients right = coefficient_change(p++, x[i + 1]);
+          const std::size_t pr = p++; // the dropped row's
           const std::size_t jn = i + 1 - i0;
-          right_a = right.a;
-          Bn[jn] = third * right.b;
+          right_a = ca[pr];
+          Bn[jn] = third * cb[pr];
           // Both elements at this node lie in this block (kept nodes bound the blocks).
           const double hh6 = sixth * (x[i + 2] - x[i]);
-          Cn[jn] = hh6 * right.c;
-          Dn[jn] = hh6 * right.d;
+          Cn[jn] = hh6 * cc[pr];
+          Dn[jn] = hh6 * cd[pr];
         }
         const std::size_t ie = i - i0;
-        A[ie] = left_a + 4.0 * mid.a + right_a; // divided by 6h below
+        A[ie] = left_a + 4.0 * ca[pm] + right_a; // divided by 6h below
         six_h[ie] = 6.0 * h;
-        Bm[ie] = 4.0 * third * mid.b;
-        Cm[ie] = 4.0 * sixth * h * mid.c;
-        Dm[ie] = 4.0 * sixth * h * mid.d;
+        Bm[ie] = 4.0 * third * cb[pm];
+        Cm[ie] = 4.0 * sixth * h * cc[pm];
+        Dm[ie] = 4.0 * sixth * h * cd[pm];
         left_a = right_a;
       }
     }

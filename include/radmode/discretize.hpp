@@ -101,19 +101,32 @@ inline FormCoefficients stellar_coefficients(const StructureValues& v, double x,
 /// dGamma1 (P + dP) + Gamma1 dP and m rho -> dm (rho + drho) + m drho,
 ///     da = d(Gamma1 P) x^4, db = 3 d(Gamma1 P) x^3, dc = 9 d(Gamma1 P) x^2 - 4 d(m rho) x,
 ///     dd = drho x^4.
+namespace detail {
+/// stellar_coefficients_change's arithmetic on a number type T (see stellar_coefficients_of):
+/// values m, P, rho, Gamma1 and their changes dm, dP, drho, dGamma1 (cgs).
+template <class T>
+inline CoefficientsOf<T> stellar_coefficients_change_of(T m_g, T P_cgs, T rho_cgs, T gamma1,
+                                                        T dm_g, T dP_cgs, T drho_cgs,
+                                                        T dgamma1, T x, const StellarUnits& u) {
+  const T P = P_cgs * u.inv_P, rho = rho_cgs * u.inv_rho, m = m_g * u.inv_M;
+  const T dP = dP_cgs * u.inv_P, drho = drho_cgs * u.inv_rho, dm = dm_g * u.inv_M;
+  const T dgp = dgamma1 * (P + dP) + gamma1 * dP;
+  const T dmrho = dm * (rho + drho) + m * drho;
+  const T x2 = x * x;
+  return {dgp * x2 * x2, 3.0 * dgp * x2 * x, 9.0 * dgp * x2 - 4.0 * dmrho * x, drho * x2 * x2};
+}
+} // namespace detail
+
 inline FormCoefficients stellar_coefficients_change(const StructureValues& v,
                                                     const StructureValues& dv, double x,
                                                     const StellarUnits& u) {
-  const double P = v.P * u.inv_P, rho = v.rho * u.inv_rho, m = v.m * u.inv_M;
-  const double dP = dv.P * u.inv_P, drho = dv.rho * u.inv_rho, dm = dv.m * u.inv_M;
-  const double dgp = dv.gamma1 * (P + dP) + v.gamma1 * dP;
-  const double dmrho = dm * (rho + drho) + m * drho;
-  const double x2 = x * x;
+  const auto k = detail::stellar_coefficients_change_of(v.m, v.P, v.rho, v.gamma1, dv.m, dv.P,
+                                                        dv.rho, dv.gamma1, x, u);
   FormCoefficients c;
-  c.a = dgp * x2 * x2;
-  c.b = 3.0 * dgp * x2 * x;
-  c.c = 9.0 * dgp * x2 - 4.0 * dmrho * x;
-  c.d = drho * x2 * x2;
+  c.a = k.a;
+  c.b = k.b;
+  c.c = k.c;
+  c.d = k.d;
   return c;
 }
 

@@ -1,5 +1,7 @@
 #include "pencil_block.hpp"
 
+#include "pair.hpp"
+
 #include "radmode/error.hpp"
 
 #include <algorithm>
@@ -89,32 +91,13 @@ void for_prolongation(const Prolongation& from, const TridiagonalPencil& fine, G
 /// them for every call cost as much as the arithmetic.
 struct Workspace {
   std::vector<double> x, y, dinv;
+  std::vector<double> rows; ///< per row of the last step's vector: K y, M y, |K||y|, |M||y|
   void reserve(std::size_t size) {
     for (auto* v : {&x, &y, &dinv})
       if (v->size() < size) v->resize(size);
   }
 };
 thread_local Workspace t_work;
-
-/// Two doubles handled by one instruction: the vector extension of GCC and Clang (SSE2 on
-/// x86-64, NEON on AArch64). Arithmetic is elementwise, a scalar operand applies to both
-/// lanes, and each lane computes exactly what the same expression on doubles computes.
-typedef double Pair __attribute__((vector_size(16)));
-typedef std::uint64_t PairBits __attribute__((vector_size(16)));
-
-Pair load2(const double* p) {
-  Pair v;
-  std::memcpy(&v, p, sizeof v);
-  return v;
-}
-void store2(double* p, Pair v) { std::memcpy(p, &v, sizeof v); }
-Pair abs2(Pair v) {
-  PairBits bits;
-  std::memcpy(&bits, &v, sizeof v);
-  bits &= ~(std::uint64_t{1} << 63);
-  std::memcpy(&v, &bits, sizeof v);
-  return v;
-}
 
 /// Inertia counts for B shifts: the arithmetic of inertia_below (discretize.cpp), per shift,
 /// two shifts to an instruction (Pair; an odd B gets a dummy shift whose count is dropped).
@@ -123,15 +106,14 @@ Pair abs2(Pair v) {
 /// chain of dependent divisions, which bounds the speed for up to four shifts).
 template <std::size_t B> void count_block(const TridiagonalPencil& p, const double* s, int* out) {
   constexpr std::size_t H = (B + 1) / 2;
-  typedef std::int64_t Counts __attribute__((vector_size(16)));
-  const std::size_t n = p.size();
+    const std::size_t n = p.size();
   const double* const kd = p.k_diag.data();
   const double* const md = p.m_diag.data();
   const double* const ko = p.k_off.data();
   const double* const mo = p.m_off.data();
   const Pair tiny = {-1e-300, -1e-300};
   Pair shift[H], d[H];
-  Counts negative[H];
+  PairMask negative[H];
   for (std::size_t h = 0; h < H; ++h) {
     shift[h] = Pair{s[2 * h], 2 * h + 1 < B ? s[2 * h + 1] : 0.0};
     Pair piv = kd[0] - shift[h] * md[0];
@@ -144,7 +126,7 @@ template <std::size_t B> void count_block(const TridiagonalPencil& p, const doub
     for (std::size_t h = 0; h < H; ++h) {
       const Pair e_prev = koj - shift[h] * moj;
       Pair piv = (kdj - shift[h] * mdj) - e_prev * e_prev / d[h];
-      const Counts zero = piv == 0.0;
+      const PairMask zero = piv == 0.0;
       if (__builtin_expect((zero[0] | zero[1]) != 0, 0)) piv = zero ? tiny : piv; // off the chain
       negative[h] -= piv < 0.0;
       d[h] = piv;
@@ -238,9 +220,65 @@ public:
   }
 
   /// y = (K - s M)^{-1} M x per column, into the second work array; q[b] its Rayleigh
-  /// quotient and ymy[b] = y^T M y. The vectors are not changed until accept().
-  void step(const double* s, double* q, double* ymy) {
+  /// quotient and ymy[b] = y^T M y. The vectors are not changed until accept(). With
+  /// `keep_rows`, the row products of y that the sweep forms anyway (K y, M y, and |K||y|,
+  /// |M||y| from the same terms) are kept for residuals().
+  void step(const double* s, double* q, double* ymy, bool keep_rows) {
+    if (keep_rows) step_impl<true>(s, q, ymy);
+    else step_impl<false>(s, q, ymy);
+  }
+
+  /// The vectors become those of the last step, vector b scaled by scale[b].
+  void accept(const double* scale) {
+    std::swap(t_work.x, t_work.y);
+    for (std::size_t b = 0; b < P; ++b) m_scale[b / 2][b % 2] = b < B ? scale[b] : 0.0;
+  }
+
+  /// ||K x - rho M x|| / (||K x|| + |rho| ||M x||) per column, the norms, and the residual's
+  /// round-off level eps || |K||x| + |rho||M||x| || / (same denominator): res[b] is reported as
+  /// 0 when below ten times that level (iterating cannot lower it further). x: the vectors
+  /// accepted from a step taken with keep_rows (a light pass over its kept row products; the
+  /// same sums, in the same order, as computing them from x).
+  void residuals(const double* rho, double* res, RqiStats* stats) const {
+    Pair r2[H] = {}, k2[H] = {}, m2[H] = {}, a2[H] = {}, rh[H] = {}, arh[H] = {};
+    for (std::size_t b = 0; b < P; ++b) {
+      rh[b / 2][b % 2] = b < B ? rho[b] : 0.0;
+      arh[b / 2][b % 2] = std::abs(rh[b / 2][b % 2]);
+    }
+    const double* const rows = t_work.rows.data();
+    for (std::size_t j = 0; j < m_n; ++j) {
+      const double* const r = rows + j * row_stride;
+      for (std::size_t h = 0; h < H; ++h) {
+        const Pair kx = load2(r + 2 * h), mx = load2(r + P + 2 * h);
+        const Pair ak = load2(r + 2 * P + 2 * h), am = load2(r + 3 * P + 2 * h);
+        const Pair e = kx - rh[h] * mx, a = ak + arh[h] * am;
+        r2[h] += e * e;
+        k2[h] += kx * kx;
+        m2[h] += mx * mx;
+        a2[h] += a * a;
+      }
+    }
+    for (std::size_t b = 0; b < B; ++b) {
+      const std::size_t h = b / 2, i = b % 2;
+      const double denom = std::sqrt(k2[h][i]) + std::abs(rho[b]) * std::sqrt(m2[h][i]);
+      const double floor = denom > 0 ? eps * std::sqrt(a2[h][i]) / denom : 0.0;
+      res[b] = denom > 0 ? std::sqrt(r2[h][i]) / denom : 0.0;
+      if (res[b] <= 10 * floor) res[b] = 0.0;
+      const double s = scale(b); // the norms of the scaled vector
+      stats[b].r_norm = std::sqrt(r2[h][i]) * s;
+      stats[b].kx_norm = std::sqrt(k2[h][i]) * s;
+      stats[b].mx_norm = std::sqrt(m2[h][i]) * s;
+      stats[b].a_norm = std::sqrt(a2[h][i]) * s;
+    }
+  }
+
+private:
+  static constexpr std::size_t row_stride = 4 * P; ///< doubles per row of t_work.rows
+
+  template <bool Keep> void step_impl(const double* s, double* q, double* ymy) {
     const std::size_t n = m_n;
+    if (Keep && t_work.rows.size() < n * row_stride) t_work.rows.resize(n * row_stride);
+    double* const rows = t_work.rows.data();
     const double* const x = t_work.x.data();
     double* const y = t_work.y.data();
     double* const dv = t_work.dinv.data();
@@ -266,8 +304,9 @@ public:
         const Pair mx =
             (mdj * load2(xc + 2 * h) + mo_prev * load2(xl + 2 * h) + moj * load2(xr + 2 * h)) * m_scale[h];
         Pair d = kdj - shift[h] * mdj - l_prev[h] * (ko_prev - shift[h] * mo_prev);
-        for (std::size_t i = 0; i < 2; ++i) // singular: stay finite (rare: a branch per lane)
-          if (std::abs(d[i]) < floor[h][i]) d[i] = d[i] < 0 ? -floor[h][i] : floor[h][i];
+        const PairMask tiny = abs2(d) < floor[h]; // singular: stay finite (rare: off the chain)
+        if (__builtin_expect((tiny[0] | tiny[1]) != 0, 0))
+          d = tiny ? (d < 0.0 ? -floor[h] : floor[h]) : d;
         const Pair dinv = 1.0 / d;
         y_prev[h] = mx - l_prev[h] * y_prev[h];
         l_prev[h] = (koj - shift[h] * moj) * dinv;
@@ -294,6 +333,15 @@ public:
       store2(y + i, y1[h]);
       y2[h] = ykv[h] = ymv[h] = Pair{0.0, 0.0};
     }
+    // Row products (centre, left, right terms, summed in that order) kept for residuals().
+    auto keep = [&](std::size_t row, std::size_t h, Pair k1, Pair k0, Pair k2, Pair kv, Pair m1,
+                    Pair m0, Pair m2, Pair mv) {
+      double* const r = rows + row * row_stride + 2 * h;
+      store2(r, kv);
+      store2(r + P, mv);
+      store2(r + 2 * P, abs2(k1) + abs2(k0) + abs2(k2));
+      store2(r + 3 * P, abs2(m1) + abs2(m0) + abs2(m2));
+    };
     // Row j of the sweep; kd1, md1: diagonal of row j + 1; ko1, mo1: its upper neighbour.
     auto backward = [&](std::size_t j, double koj, double moj, double kd1, double md1, double ko1,
                         double mo1) {
@@ -303,8 +351,10 @@ public:
         const Pair l = (koj - shift[h] * moj) * dvj;
         const Pair y0 = load2(y + i) * dvj - l * y1[h];
         store2(y + i, y0);
-        const Pair kv = kd1 * y1[h] + koj * y0 + ko1 * y2[h];
-        const Pair mv = md1 * y1[h] + moj * y0 + mo1 * y2[h];
+        const Pair k1 = kd1 * y1[h], k0 = koj * y0, k2 = ko1 * y2[h];
+        const Pair m1 = md1 * y1[h], m0 = moj * y0, m2 = mo1 * y2[h];
+        const Pair kv = k1 + k0 + k2, mv = m1 + m0 + m2;
+        if (Keep) keep(j + 1, h, k1, k0, k2, kv, m1, m0, m2, mv);
         ykv[h] += y1[h] * kv;
         ymv[h] += y1[h] * mv;
         y2[h] = y1[h];
@@ -314,9 +364,12 @@ public:
     if (n > 1) backward(n - 2, ko[n - 2], mo[n - 2], kd[n - 1], md[n - 1], 0.0, 0.0);
     for (std::size_t j = n - 2; j-- > 0;) backward(j, ko[j], mo[j], kd[j + 1], md[j + 1], ko[j + 1], mo[j + 1]);
     const double ko0 = n > 1 ? ko[0] : 0.0, mo0 = n > 1 ? mo[0] : 0.0;
-    for (std::size_t h = 0; h < H; ++h) { // row 0
-      ykv[h] += y1[h] * (kd[0] * y1[h] + ko0 * y2[h]);
-      ymv[h] += y1[h] * (md[0] * y1[h] + mo0 * y2[h]);
+    for (std::size_t h = 0; h < H; ++h) { // row 0 (no left neighbour: a zero term)
+      const Pair k1 = kd[0] * y1[h], k2 = ko0 * y2[h], m1 = md[0] * y1[h], m2 = mo0 * y2[h];
+      const Pair kv = k1 + k2, mv = m1 + m2;
+      if (Keep) keep(0, h, k1, Pair{0.0, 0.0}, k2, kv, m1, Pair{0.0, 0.0}, m2, mv);
+      ykv[h] += y1[h] * kv;
+      ymv[h] += y1[h] * mv;
     }
     for (std::size_t b = 0; b < B; ++b) {
       q[b] = ykv[b / 2][b % 2] / ymv[b / 2][b % 2];
@@ -324,43 +377,6 @@ public:
     }
   }
 
-  /// The vectors become those of the last step, vector b scaled by scale[b].
-  void accept(const double* scale) {
-    std::swap(t_work.x, t_work.y);
-    for (std::size_t b = 0; b < P; ++b) m_scale[b / 2][b % 2] = b < B ? scale[b] : 0.0;
-  }
-
-  /// ||K x - rho M x|| / (||K x|| + |rho| ||M x||) per column, the norms, and the residual's
-  /// round-off level eps || |K||x| + |rho||M||x| || / (same denominator): res[b] is reported as
-  /// 0 when below ten times that level (iterating cannot lower it further).
-  void residuals(const double* rho, double* res, RqiStats* stats) const {
-    Pair r2[H] = {}, k2[H] = {}, m2[H] = {}, a2[H] = {}, rh[H] = {}, arh[H] = {};
-    for (std::size_t b = 0; b < P; ++b) {
-      rh[b / 2][b % 2] = b < B ? rho[b] : 0.0;
-      arh[b / 2][b % 2] = std::abs(rh[b / 2][b % 2]);
-    }
-    for_products(t_work.x.data(), [&](std::size_t h, Pair, Pair kx, Pair mx, Pair ak, Pair am) {
-      const Pair e = kx - rh[h] * mx, a = ak + arh[h] * am;
-      r2[h] += e * e;
-      k2[h] += kx * kx;
-      m2[h] += mx * mx;
-      a2[h] += a * a;
-    });
-    for (std::size_t b = 0; b < B; ++b) {
-      const std::size_t h = b / 2, i = b % 2;
-      const double denom = std::sqrt(k2[h][i]) + std::abs(rho[b]) * std::sqrt(m2[h][i]);
-      const double floor = denom > 0 ? eps * std::sqrt(a2[h][i]) / denom : 0.0;
-      res[b] = denom > 0 ? std::sqrt(r2[h][i]) / denom : 0.0;
-      if (res[b] <= 10 * floor) res[b] = 0.0;
-      const double s = scale(b); // the norms of the scaled vector
-      stats[b].r_norm = std::sqrt(r2[h][i]) * s;
-      stats[b].kx_norm = std::sqrt(k2[h][i]) * s;
-      stats[b].mx_norm = std::sqrt(m2[h][i]) * s;
-      stats[b].a_norm = std::sqrt(a2[h][i]) * s;
-    }
-  }
-
-private:
   double scale(std::size_t b) const { return m_scale[b / 2][b % 2]; }
 
   /// Row j of the pencil: K_jj, M_jj, K_j,j-1, M_j,j-1, K_j,j+1, M_j,j+1 (0 beyond the ends).
@@ -453,7 +469,7 @@ void iterate_block(const TridiagonalPencil& p, std::vector<double>* const* xs, c
       shift[b] = it == 0 && !std::isnan(first_shift[b]) ? first_shift[b] : rho[b];
       if (!std::isfinite(shift[b])) shift[b] = 0.0;
     }
-    block.step(shift, q, ymy);
+    block.step(shift, q, ymy, residual_tol > 0);
     bool failed[B] = {};
     for (std::size_t b = 0; b < B; ++b) {
       next_scale[b] = 0.0; // columns no longer followed: anything finite

@@ -576,38 +576,48 @@ std::optional<MeshLevel> coarsen(const std::vector<std::size_t>& fn, bool fix_fi
   //   A_c(J, J + 1) = A(f, f+1)                                        (neighbours)
   //                 = t A(f, m) + t (1 - t) A(m, m) + (1 - t) A(m, f')   (midpoint m)
   // which equals assembling the coarse elements directly (nested spaces, shared quadrature).
-  auto diag = [&](const std::vector<double>& d, std::size_t i) { return i < first ? 0.0 : d[i - first]; };
-  auto off = [&](const std::vector<double>& o, std::size_t i) { return i < first ? 0.0 : o[i - first]; };
+  // Computed per interval of the coarse mesh (each weight divided out once), in the order
+  // of the formula: A(f, f), then the midpoint before, then the midpoint after.
   TridiagonalPencil& pc = c.pencil;
-  pc.k_diag.assign(nc, 0.0);
-  pc.m_diag.assign(nc, 0.0);
-  pc.k_off.assign(nc - 1, 0.0);
-  pc.m_off.assign(nc - 1, 0.0);
+  pc.k_diag.resize(nc);
+  pc.m_diag.resize(nc);
+  pc.k_off.resize(nc - 1);
+  pc.m_off.resize(nc - 1);
   pc.node.assign(c.nodes.begin() + static_cast<std::ptrdiff_t>(first), c.nodes.end());
   const std::size_t last = pos.size() - 1;
+  const double* const kd = pf.k_diag.data();
+  const double* const md = pf.m_diag.data();
+  const double* const ko = pf.k_off.data();
+  const double* const mo = pf.m_off.data();
+  double* const ckd = pc.k_diag.data();
+  double* const cmd = pc.m_diag.data();
+  double* const cko = pc.k_off.data();
+  double* const cmo = pc.m_off.data();
   for (std::size_t J = first; J <= last; ++J) {
-    const std::size_t f = pos[J];
-    double kd = diag(pf.k_diag, f), md = diag(pf.m_diag, f);
-    if (J > 0 && pos[J - 1] + 2 == f) { // midpoint before
-      const std::size_t m = f - 1;
-      const double w = (x[fn[m]] - x[fn[pos[J - 1]]]) / (x[fn[f]] - x[fn[pos[J - 1]]]);
-      kd += 2 * w * off(pf.k_off, m) + w * w * diag(pf.k_diag, m);
-      md += 2 * w * off(pf.m_off, m) + w * w * diag(pf.m_diag, m);
-    }
-    if (J < last && pos[J + 1] == f + 2) { // midpoint after
+    ckd[J - first] = kd[pos[J] - first];
+    cmd[J - first] = md[pos[J] - first];
+  }
+  for (std::size_t J = 0; J < last; ++J) {
+    const std::size_t f = pos[J], g = pos[J + 1];
+    const bool unknown = J >= first; // (the removed first node takes no row)
+    if (g == f + 2) { // midpoint m: the weight of J there is wf, that of J + 1 is wg
       const std::size_t m = f + 1;
-      const double w = (x[fn[pos[J + 1]]] - x[fn[m]]) / (x[fn[pos[J + 1]]] - x[fn[f]]);
-      kd += 2 * w * off(pf.k_off, f) + w * w * diag(pf.k_diag, m);
-      md += 2 * w * off(pf.m_off, f) + w * w * diag(pf.m_diag, m);
-      const double t = 1.0 - w;
-      pc.k_off[J - first] = t * off(pf.k_off, f) + t * w * diag(pf.k_diag, m) + w * off(pf.k_off, m);
-      pc.m_off[J - first] = t * off(pf.m_off, f) + t * w * diag(pf.m_diag, m) + w * off(pf.m_off, m);
-    } else if (J < last) { // neighbours
-      pc.k_off[J - first] = off(pf.k_off, f);
-      pc.m_off[J - first] = off(pf.m_off, f);
+      const double xf = x[fn[f]], xm = x[fn[m]], xg = x[fn[g]];
+      const double wg = (xm - xf) / (xg - xf), wf = (xg - xm) / (xg - xf);
+      const double kdm = kd[m - first], mdm = md[m - first], kom = ko[m - first], mom = mo[m - first];
+      if (unknown) {
+        const double kof = ko[f - first], mof = mo[f - first], t = 1.0 - wf;
+        ckd[J - first] += 2 * wf * kof + wf * wf * kdm;
+        cmd[J - first] += 2 * wf * mof + wf * wf * mdm;
+        cko[J - first] = t * kof + t * wf * kdm + wf * kom;
+        cmo[J - first] = t * mof + t * wf * mdm + wf * mom;
+      }
+      ckd[J + 1 - first] += 2 * wg * kom + wg * wg * kdm;
+      cmd[J + 1 - first] += 2 * wg * mom + wg * wg * mdm;
+    } else if (unknown) { // neighbours
+      cko[J - first] = ko[f - first];
+      cmo[J - first] = mo[f - first];
     }
-    pc.k_diag[J - first] = kd;
-    pc.m_diag[J - first] = md;
   }
   return c;
 }

@@ -143,7 +143,9 @@ template <std::size_t B> void count_block(const TridiagonalPencil& p, const doub
 /// is spent on normalizing. A step is two passes: (1) M x, the LDL^T factorization of K - s M
 /// and the forward substitution together (the Thomas algorithm); (2) the diagonal scaling,
 /// the backward substitution and the Rayleigh quotient of y, whose row products are formed as
-/// soon as the backward sweep has passed a row's neighbours. Values carried from row to row
+/// soon as the backward sweep has passed a row's neighbours (kept, with |K||y| and |M||y| from
+/// the same terms, when a residual is wanted: residuals() is then a light pass over them).
+/// Values carried from row to row
 /// stay in registers, so the passes run at the latency of their recurrences, which the
 /// independent columns overlap, and the memory traffic per step is a few reads and writes of
 /// each array (this is what bounds the speed once the arrays leave the caches).

@@ -690,13 +690,13 @@ std::optional<PencilSpectrum> bisection_solve(const TridiagonalPencil& p, int i0
   }
   for (std::size_t k = 0; k < n_ev; ++k)
     if (!closed(k)) return std::nullopt;
-  std::vector<std::vector<double>> xs(n_ev, std::vector<double>(p.size()));
+  // The same start vector for every target (the shift picks the eigenvector out).
+  std::vector<double> start(p.size());
+  for (std::size_t i = 0; i < p.size(); ++i)
+    start[i] = 1.0 + 0.5 * std::sin(0.7 * static_cast<double>(i) + 0.3);
+  std::vector<std::vector<double>> xs(n_ev, start);
   std::vector<double> first_shifts(n_ev);
-  for (std::size_t k = 0; k < n_ev; ++k) {
-    for (std::size_t i = 0; i < p.size(); ++i)
-      xs[k][i] = 1.0 + 0.5 * std::sin(0.7 * static_cast<double>(i) + 0.3);
-    first_shifts[k] = 0.5 * (blo[k] + bhi[k]);
-  }
+  for (std::size_t k = 0; k < n_ev; ++k) first_shifts[k] = 0.5 * (blo[k] + bhi[k]);
   PencilSpectrum out;
   const std::vector<detail::RqiStats> stats =
       detail::rayleigh_iterate(p, xs, 1, 8, eng.scale, 1e-10, first_shifts);

@@ -1049,7 +1049,7 @@ namespace {
 /// integrated over each element of the model mesh with Simpson's rule (the eigenvector is
 /// linear there). Both interpolations reproduce the kept rows exactly, so the change vanishes
 /// at the kept nodes; at a dropped row it is the coarser interpolant's error at that row.
-/// `kept`: base nodes of the half structure (every_other_node), `half`: that structure.
+/// `kept`: base nodes of the half structure (every_other_node), `half`: its curves.
 ///
 /// Simpson's rule on element i (length h, end values u_i, u_{i+1}, slope s = du/h, midpoint
 /// value u_m), with F(D, u) = D.a s^2 + 2 D.b u s + (D.c - lambda D.d) u^2 and D the change
@@ -1061,7 +1061,7 @@ namespace {
 /// Computed in blocks of elements: first the change of the coefficients (the half structure
 /// evaluated at all points of the block together), then these weights, then one pass per mode
 /// without divisions.
-std::vector<double> interpolation_change(const Structure& s, const Structure& half,
+std::vector<double> interpolation_change(const Structure& s, const Structure::RowSubset& half,
                                          const std::vector<std::size_t>& kept,
                                          const std::vector<double>& x,
                                          const TridiagonalPencil& pf,
@@ -1069,7 +1069,6 @@ std::vector<double> interpolation_change(const Structure& s, const Structure& ha
   const StellarUnits units = stellar_units(s);
   const std::size_t offset = pf.node.front(); // 1 with a rigid inner node
   const std::vector<double>& r = s.node_r();
-  const std::vector<double>& half_r = half.node_r();
   const std::size_t n_modes = pairs.size();
   std::vector<double> change(n_modes, 0.0);
   if (kept.size() < 2 || n_modes == 0) return change;
@@ -1119,7 +1118,7 @@ std::vector<double> interpolation_change(const Structure& s, const Structure& ha
     // interval), in the half structure's and the whole structure's intervals.
     std::size_t np = 0;
     for (std::size_t k = k0; k < k1; ++k) {
-      const double r0 = half_r[k], inv_span = 1.0 / (half_r[k + 1] - r0);
+      const double r0 = r[kept[k]], inv_span = 1.0 / (r[kept[k + 1]] - r0);
       for (std::size_t i = kept[k]; i < kept[k + 1]; ++i) {
         at_interval[np] = k;
         at_t[np] = (0.5 * (r[i] + r[i + 1]) - r0) * inv_span;
@@ -1331,8 +1330,9 @@ ModeSet solve_modes(const StellarModel& model, const SolveOptions& options) {
   // come from every other table row.
   std::vector<double> dlambda;
   if (options.richardson && coarse)
-    if (const auto half = every_other_row(s))
-      dlambda = interpolation_change(s, *half, coarse->nodes, form.x, pf, sf.pairs);
+    if (const Structure::RowSubset half(s, coarse->nodes);
+        half.table_rows() >= StellarModel::min_points) // as every_other_row(s)
+      dlambda = interpolation_change(s, half, coarse->nodes, form.x, pf, sf.pairs);
 
   std::vector<double> errors; // per pair, pencil units
   for (auto& e : sf.pairs) {

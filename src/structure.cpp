@@ -49,6 +49,21 @@ double fd_slope(const double* r, const double* f, std::size_t j, std::size_t lo,
   return la * f[a] + lb * f[b] + lc * f[c];
 }
 
+/// d ln rho/dr at each of n rows by finite differences (fd_slope) inside each run of rows with
+/// rho > 0 and no repeated radius; NaN elsewhere (a zero density, a lone row).
+void log_density_slopes(const double* r, const double* rho, const double* lnrho, std::size_t n,
+                        double* dlnrho) {
+  std::fill(dlnrho, dlnrho + n, std::numeric_limits<double>::quiet_NaN());
+  std::size_t lo = 0;
+  for (std::size_t j = 1; j <= n; ++j) {
+    if (j < n && r[j] != r[j - 1] && rho[j] > 0 && rho[j - 1] > 0) continue;
+    const std::size_t hi = j - 1; // run [lo, hi]
+    if (hi > lo && rho[lo] > 0)
+      for (std::size_t k = lo; k <= hi; ++k) dlnrho[k] = fd_slope(r, lnrho, k, lo, hi);
+    lo = j;
+  }
+}
+
 } // namespace
 
 // Defined before its callers, so that they can inline it (measured: the calls cost about
@@ -101,7 +116,81 @@ Structure::Structure(StellarModel&& table, InnerCondition inner, std::vector<dou
   prepare(true);
 }
 
-void Structure::prepare(bool rows_known) {
+inline bool Structure::build_interval(Interval& iv, StructureValues& v, const Columns& c,
+                                      std::size_t j, std::size_t j1, std::size_t d0,
+                                      std::size_t d1, bool has_before, std::size_t before) {
+  const double *r = c.r, *m = c.m, *P = c.P, *rho = c.rho;
+  iv.row = j;
+  iv.r0 = r[j];
+  iv.r1 = r[j1];
+  const double h = iv.r1 - iv.r0;
+  iv.g0 = c.gamma1[j];
+  iv.g1 = c.gamma1[j1];
+  iv.na0 = c.nabla_ad ? c.nabla_ad[j] : 0.0;
+  iv.na1 = c.nabla_ad ? c.nabla_ad[j1] : 0.0;
+  set_curve(iv.m, m[j], m[j1], h * c.dm[j], h * c.dm[j1], Shape::hermite);
+  if (!monotone_cubic(iv.m.f0, iv.m.f1, iv.m.g0, iv.m.g1)) iv.m.shape = Shape::linear;
+  const double* dlnrho = c.dlnrho;
+  shape_for(iv.rho, rho[j], rho[j1], h * rho[j] * dlnrho[d0], h * rho[j1] * dlnrho[d1],
+            c.lnrho[j], c.lnrho[j1], h * dlnrho[d0], h * dlnrho[d1], false);
+  if (rho[j1] == 0.0 && rho[j] > 0.0 && has_before && r[before] < r[j] &&
+      rho[before] > rho[j]) {
+    // Density falling to zero: power law in the depth below r_{j+1}.
+    const double alpha = std::log(rho[before] / rho[j]) /
+                         std::log((r[j1] - r[before]) / (r[j1] - r[j]));
+    if (std::isfinite(alpha) && alpha > 0.0 && alpha <= 20.0)
+      set_curve(iv.rho, rho[j], 0.0, alpha, 0.0, Shape::power_to_zero);
+  }
+  const bool choose = shape_for(iv.P, P[j], P[j1], h * c.dP[j], h * c.dP[j1], c.lnP[j],
+                                c.lnP[j1], h * c.dlnP[j], h * c.dlnP[j1], true);
+  if (choose) {
+    const Basis mid = basis(0.5); // constant-folded
+    log_argument(iv.P, 0.5, mid, v.P);
+    if (!log_argument(iv.rho, 0.5, mid, v.rho)) v.rho = value(iv.rho, 0.5, mid);
+  }
+  return choose;
+}
+
+void Structure::midpoint_exponentials(const Interval* iv, StructureValues* mid_values,
+                                      const unsigned char* known, std::size_t count) {
+  const Basis mid = basis(0.5); // constant-folded
+  double unused = 0;
+  for (std::size_t i = 0; i < count; ++i)
+    if (known[i]) {
+      mid_values[i].P = std::exp(mid_values[i].P);
+      if (log_argument(iv[i].rho, 0.5, mid, unused)) mid_values[i].rho = std::exp(mid_values[i].rho);
+    }
+}
+
+inline void Structure::choose_pressure(Interval& iv, StructureValues& v, double P0, double P1,
+                                       double dP0, double dP1) {
+  const Basis mid = basis(0.5); // constant-folded
+  const double h = iv.r1 - iv.r0;
+  const Curve lin{P0, P1, h * dP0, h * dP1, Shape::hermite};
+  const Curve& lg = iv.P;
+  v.m = value(iv.m, 0.5, mid);
+  v.gamma1 = (1.0 - 0.5) * iv.g0 + 0.5 * iv.g1;
+  const double rm = 0.5 * (iv.r0 + iv.r1);
+  const double target = rm > 0 ? -constants::G * v.m * v.rho * h / (rm * rm) : 0.0;
+  const auto v_lin = eval(lin, 0.5, mid);
+  const double dP_log =
+      v.P * (mid.d00 * lg.f0 + mid.d10 * lg.g0 + mid.d01 * lg.f1 + mid.d11 * lg.g1);
+  if (!(std::abs(dP_log - target) <= std::abs(v_lin.second - target))) {
+    v.P = v_lin.first;
+    iv.P = lin;
+  }
+}
+
+// The preparation and the log-value evaluations with every call inside inlined (GCC, Clang): left to the
+// compiler, build_interval or the shape_for and log_argument calls in it stayed calls, which
+// slowed the preparation of 2,000 rows from 73 to 82-85 us.
+#if defined(__GNUC__)
+#define RADMODE_FLATTEN __attribute__((flatten))
+#else
+#define RADMODE_FLATTEN
+#endif
+
+RADMODE_FLATTEN void Structure::prepare(bool rows_known) {
   const StellarModel& t = m_table;
   m_has_nabla_ad = !t.nabla_ad.empty();
   m_mass = t.m.back();
@@ -132,18 +221,7 @@ void Structure::prepare(bool rows_known) {
       lnP[j] = P[j] > 0 ? std::log(P[j]) : 0.0;
       dlnP[j] = P[j] > 0 ? dP[j] / P[j] : 0.0;
     }
-  std::fill(dlnrho, dlnrho + n, std::numeric_limits<double>::quiet_NaN());
-  {
-    // Runs of rows with rho > 0 and no repeated radius inside.
-    std::size_t lo = 0;
-    for (std::size_t j = 1; j <= n; ++j) {
-      if (j < n && r[j] != r[j - 1] && rho[j] > 0 && rho[j - 1] > 0) continue;
-      const std::size_t hi = j - 1; // run [lo, hi]
-      if (hi > lo && rho[lo] > 0)
-        for (std::size_t k = lo; k <= hi; ++k) dlnrho[k] = fd_slope(r, lnrho, k, lo, hi);
-      lo = j;
-    }
-  }
+  log_density_slopes(r, rho, lnrho, n, dlnrho);
 
   // Records are written in place (assembling one in a local and copying it into the vector
   // made the copy wait for the local's stores), and not zeroed first (Interval's constructor
@@ -162,7 +240,8 @@ void Structure::prepare(bool rows_known) {
   // Where both pressure cubics are usable the shape is chosen at the midpoint: the log cubic
   // is put in place first, and the logs of P and rho there kept in m_mid; their exponentials
   // are evaluated afterwards in one loop, then the choice is made.
-  const Basis mid = basis(0.5); // constant-folded
+  const Columns c{r,  m,  P,     rho, gamma1, m_has_nabla_ad ? t.nabla_ad.data() : nullptr,
+                  dm, dP, lnrho, lnP, dlnP,   dlnrho};
   for (std::size_t j = 0; j + 1 < n; ++j) {
     if (r[j + 1] == r[j]) { // repeated radius: no interval, the node is a discontinuity
       const std::size_t node = m_node_r.size() - 1;
@@ -170,68 +249,23 @@ void Structure::prepare(bool rows_known) {
         m_discontinuity_nodes.push_back(node);
       continue;
     }
-    Interval& iv = m_iv.emplace_back();
-    iv.row = j;
-    iv.r0 = r[j];
-    iv.r1 = r[j + 1];
-    const double h = iv.r1 - iv.r0;
-    iv.g0 = gamma1[j];
-    iv.g1 = gamma1[j + 1];
-    iv.na0 = m_has_nabla_ad ? t.nabla_ad[j] : 0.0;
-    iv.na1 = m_has_nabla_ad ? t.nabla_ad[j + 1] : 0.0;
-    set_curve(iv.m, m[j], m[j + 1], h * dm[j], h * dm[j + 1], Shape::hermite);
-    if (!monotone_cubic(iv.m.f0, iv.m.f1, iv.m.g0, iv.m.g1)) iv.m.shape = Shape::linear;
-    shape_for(iv.rho, rho[j], rho[j + 1], h * rho[j] * dlnrho[j], h * rho[j + 1] * dlnrho[j + 1],
-              lnrho[j], lnrho[j + 1], h * dlnrho[j], h * dlnrho[j + 1], false);
-    if (rho[j + 1] == 0.0 && rho[j] > 0.0 && j > 0 && r[j - 1] < r[j] && rho[j - 1] > rho[j]) {
-      // Density falling to zero: power law in the depth below r_{j+1}.
-      const double alpha = std::log(rho[j - 1] / rho[j]) /
-                           std::log((r[j + 1] - r[j - 1]) / (r[j + 1] - r[j]));
-      if (std::isfinite(alpha) && alpha > 0.0 && alpha <= 20.0)
-        set_curve(iv.rho, rho[j], 0.0, alpha, 0.0, Shape::power_to_zero);
-    }
-    StructureValues& v = m_mid.emplace_back();
-    const bool choose = shape_for(iv.P, P[j], P[j + 1], h * dP[j], h * dP[j + 1], lnP[j],
-                                  lnP[j + 1], h * dlnP[j], h * dlnP[j + 1], true);
+    const bool choose = build_interval(m_iv.emplace_back(), m_mid.emplace_back(), c, j, j + 1, j,
+                                       j + 1, j > 0, j - 1);
     m_mid_known.push_back(choose ? 1 : 0);
-    if (choose) {
-      log_argument(iv.P, 0.5, mid, v.P);
-      if (!log_argument(iv.rho, 0.5, mid, v.rho)) v.rho = value(iv.rho, 0.5, mid);
-    }
     m_node_r.push_back(r[j + 1]);
   }
   // The flags from the list (a bit vector grown row by row costs more).
   m_discontinuity.assign(m_node_r.size(), false);
   for (const std::size_t node : m_discontinuity_nodes) m_discontinuity[node] = true;
   const std::size_t count = m_iv.size();
-  double unused = 0;
-  for (std::size_t i = 0; i < count; ++i)
-    if (m_mid_known[i]) {
-      m_mid[i].P = std::exp(m_mid[i].P);
-      if (log_argument(m_iv[i].rho, 0.5, mid, unused)) m_mid[i].rho = std::exp(m_mid[i].rho);
-    }
+  midpoint_exponentials(m_iv.data(), m_mid.data(), m_mid_known.data(), count);
   // The choice: the cubic closer to hydrostatic equilibrium at the midpoint, compared per
   // unit t (both sides times the interval length: no division); the values computed there are
   // kept for values_at(interval, 1/2), bit for bit what value() and eval() give.
   for (std::size_t i = 0; i < count; ++i) {
     if (!m_mid_known[i]) continue;
-    Interval& iv = m_iv[i];
-    StructureValues& v = m_mid[i];
-    const std::size_t j = iv.row;
-    const double h = iv.r1 - iv.r0;
-    const Curve lin{P[j], P[j + 1], h * dP[j], h * dP[j + 1], Shape::hermite};
-    const Curve& lg = iv.P;
-    v.m = value(iv.m, 0.5, mid);
-    v.gamma1 = (1.0 - 0.5) * iv.g0 + 0.5 * iv.g1;
-    const double rm = 0.5 * (iv.r0 + iv.r1);
-    const double target = rm > 0 ? -constants::G * v.m * v.rho * h / (rm * rm) : 0.0;
-    const auto v_lin = eval(lin, 0.5, mid);
-    const double dP_log =
-        v.P * (mid.d00 * lg.f0 + mid.d10 * lg.g0 + mid.d01 * lg.f1 + mid.d11 * lg.g1);
-    if (!(std::abs(dP_log - target) <= std::abs(v_lin.second - target))) {
-      v.P = v_lin.first;
-      iv.P = lin;
-    }
+    const std::size_t j = m_iv[i].row;
+    choose_pressure(m_iv[i], m_mid[i], P[j], P[j + 1], dP[j], dP[j + 1]);
   }
   m_common.resize(count);
   for (std::size_t i = 0; i < count; ++i) {
@@ -329,37 +363,13 @@ void Structure::values_at_rule_fixed(std::size_t first, std::size_t last, const 
   }
 }
 
-void Structure::log_values_at(const std::size_t* interval, const double* t, std::size_t count,
-                              StructureValues* out, unsigned char* logs,
-                              StructureValues* values) const {
+RADMODE_FLATTEN void Structure::log_values_at(const std::size_t* interval, const double* t,
+                                              std::size_t count, StructureValues* out,
+                                              unsigned char* logs,
+                                              StructureValues* values) const {
+  // One pass in blocks: the logs, and with `values` the values too (the table rows and the
+  // kept midpoints as they are, the exponentials of the logs in one loop per block).
   const Basis mid = basis(0.5); // constant-folded
-  for (std::size_t k = 0; k < count; ++k) {
-    const std::size_t i = interval[k];
-    if (t[k] == 0.5 && m_mid_known[i]) { // the kept midpoint values; logs where log curves
-      out[k] = m_mid[i];
-      unsigned flags = 0;
-      if (log_argument(m_iv[i].P, 0.5, mid, out[k].P)) flags |= log_P;
-      if (log_argument(m_iv[i].rho, 0.5, mid, out[k].rho)) flags |= log_rho;
-      logs[k] = static_cast<unsigned char>(flags);
-    } else if (m_common[i] && t[k] == 0.0) { // the left row; the log curves' end values
-      const Interval& iv = m_iv[i];
-      out[k] = {m_table.m[iv.row], iv.P.f0, iv.rho.f0, m_table.gamma1[iv.row]};
-      logs[k] = log_P | log_rho;
-    } else if (m_common[i] && t[k] > 0.0 && t[k] < 1.0) { // log_values, shapes known
-      const Interval& iv = m_iv[i];
-      const Basis b = basis(t[k]);
-      out[k].m = hermite(iv.m, b);
-      out[k].gamma1 = (1.0 - t[k]) * iv.g0 + t[k] * iv.g1;
-      out[k].P = hermite(iv.P, b);
-      out[k].rho = hermite(iv.rho, b);
-      logs[k] = log_P | log_rho;
-    } else {
-      logs[k] = static_cast<unsigned char>(log_values(i, t[k], out[k]));
-    }
-  }
-  if (!values) return;
-  // The values too: the table rows and the kept midpoints as they are, the exponentials of
-  // the logs in one loop per block.
   constexpr std::size_t block = 128;
   std::array<double, 2 * block> arg;
   std::array<double*, 2 * block> dest;
@@ -367,21 +377,42 @@ void Structure::log_values_at(const std::size_t* interval, const double* t, std:
     const std::size_t k1 = std::min(count, k0 + block);
     std::size_t ne = 0;
     for (std::size_t k = k0; k < k1; ++k) {
+      const std::size_t i = interval[k];
       const double tk = t[k];
-      if (tk == 0.0 || tk == 1.0 || (tk == 0.5 && m_mid_known[interval[k]])) {
-        values[k] = values_at(interval[k], tk);
+      const Interval& iv = m_iv[i];
+      if (tk == 0.5 && m_mid_known[i]) { // the kept midpoint values; logs where log curves
+        out[k] = m_mid[i];
+        if (values) values[k] = m_mid[i];
+        unsigned flags = 0;
+        if (log_argument(iv.P, 0.5, mid, out[k].P)) flags |= log_P;
+        if (log_argument(iv.rho, 0.5, mid, out[k].rho)) flags |= log_rho;
+        logs[k] = static_cast<unsigned char>(flags);
+        continue;
+      }
+      if (m_common[i] && tk == 0.0) { // the left row; the log curves' end values
+        const std::size_t row = iv.row;
+        out[k] = {m_table.m[row], iv.P.f0, iv.rho.f0, m_table.gamma1[row]};
+        if (values) values[k] = {m_table.m[row], m_table.P[row], m_table.rho[row], m_table.gamma1[row]};
+        logs[k] = log_P | log_rho;
+        continue;
+      }
+      if (m_common[i] && tk > 0.0 && tk < 1.0) logs[k] = common_log_values(iv, tk, out[k]);
+      else logs[k] = static_cast<unsigned char>(log_values(i, tk, out[k]));
+      if (!values) continue;
+      if (tk == 0.0 || tk == 1.0) {
+        values[k] = values_at(i, tk);
         continue;
       }
       values[k] = out[k];
       if (logs[k] & log_P) arg[ne] = out[k].P, dest[ne++] = &values[k].P;
       if (logs[k] & log_rho) arg[ne] = out[k].rho, dest[ne++] = &values[k].rho;
     }
-    for (std::size_t a = 0; a < ne; ++a) arg[a] = std::exp(arg[a]);
-    for (std::size_t a = 0; a < ne; ++a) *dest[a] = arg[a];
+    for (std::size_t e = 0; e < ne; ++e) arg[e] = std::exp(arg[e]);
+    for (std::size_t e = 0; e < ne; ++e) *dest[e] = arg[e];
   }
 }
 
-unsigned Structure::log_values(std::size_t interval, double t, StructureValues& out) const {
+RADMODE_FLATTEN unsigned Structure::log_values(std::size_t interval, double t, StructureValues& out) const {
   // The arithmetic of value() (so that exp of a log here is value()'s result bit for bit).
   const Interval& iv = m_iv[interval];
   unsigned logs = 0;
@@ -395,6 +426,11 @@ unsigned Structure::log_values(std::size_t interval, double t, StructureValues& 
       out.rho = t == 0.0 ? iv.rho.f0 : iv.rho.f1, logs |= log_rho;
     return logs;
   }
+  return log_values_inside(iv, t, out);
+}
+
+unsigned Structure::log_values_inside(const Interval& iv, double t, StructureValues& out) {
+  unsigned logs = 0;
   const Basis b = basis(t);
   out.m = value(iv.m, t, b);
   out.gamma1 = (1.0 - t) * iv.g0 + t * iv.g1;
@@ -405,6 +441,91 @@ unsigned Structure::log_values(std::size_t interval, double t, StructureValues& 
   put(iv.P, out.P, log_P);
   put(iv.rho, out.rho, log_rho);
   return logs;
+}
+
+RADMODE_FLATTEN Structure::RowSubset::RowSubset(const Structure& full, const std::vector<std::size_t>& kept) {
+  const std::size_t intervals = full.m_iv.size();
+  bool ok = kept.size() >= 2 && kept.front() == 0 && kept.back() == intervals;
+  for (std::size_t k = 1; ok && k < kept.size(); ++k) ok = kept[k] > kept[k - 1];
+  if (!ok)
+    throw UsageError("Structure::RowSubset: expected increasing base nodes from 0 to " +
+                     std::to_string(intervals));
+  const std::size_t count = kept.size() - 1;
+  // Every row beyond the first at a node sits at a discontinuity, and those are all kept.
+  m_table_rows = kept.size() + (full.m_table.size() - full.m_node_r.size());
+  // Table rows of each interval: the left row of its first model interval, the right row of
+  // its last. The subset's rows in order (every_other_row's table without the middle rows of
+  // a radius repeated three times, which no interval uses and which end runs of rows on both
+  // sides anyway): a_0, b_0, [a_1 where it differs from b_0: a discontinuity], b_1, ...
+  std::vector<std::size_t> a(count), b(count), pos_a(count), pos_b(count), seq;
+  seq.reserve(count + 1 + full.m_discontinuity_nodes.size());
+  for (std::size_t k = 0; k < count; ++k) {
+    a[k] = full.m_iv[kept[k]].row;
+    b[k] = full.m_iv[kept[k + 1] - 1].row + 1;
+    if (k == 0 || a[k] != b[k - 1]) seq.push_back(a[k]);
+    pos_a[k] = seq.size() - 1;
+    pos_b[k] = seq.size();
+    seq.push_back(b[k]);
+  }
+  // d ln rho/dr of the subset (finite differences over its own rows).
+  const std::size_t n = full.m_table.size(), ns = seq.size();
+  const StellarModel& t = full.m_table;
+  const double* lnrho = full.m_row.data() + lnrho_col * n;
+  std::vector<double> work(4 * ns);
+  double *sr = work.data(), *srho = sr + ns, *slnrho = srho + ns, *sdlnrho = slnrho + ns;
+  for (std::size_t q = 0; q < ns; ++q) {
+    sr[q] = t.r[seq[q]];
+    srho[q] = t.rho[seq[q]];
+    slnrho[q] = lnrho[seq[q]];
+  }
+  log_density_slopes(sr, srho, slnrho, ns, sdlnrho);
+  const double* rows = full.m_row.data();
+  const Columns c{t.r.data(),       t.m.data(),         t.P.data(),
+                  t.rho.data(),     t.gamma1.data(),    full.m_has_nabla_ad ? t.nabla_ad.data() : nullptr,
+                  rows + dm_col * n, rows + dP_col * n,  lnrho,
+                  rows + lnP_col * n, rows + dlnP_col * n, sdlnrho};
+  // As prepare(): the intervals, the midpoint exponentials in one loop, the pressure choice.
+  m_iv.resize(count);
+  std::vector<StructureValues> mid(count);
+  std::vector<unsigned char> known(count);
+  for (std::size_t k = 0; k < count; ++k) {
+    // The row before a_k in the subset: a_{k-1} where a_k = b_{k-1}, else b_{k-1} (same radius).
+    const std::size_t before = k == 0 ? 0 : a[k] == b[k - 1] ? a[k - 1] : b[k - 1];
+    known[k] = build_interval(m_iv[k], mid[k], c, a[k], b[k], pos_a[k], pos_b[k], k > 0, before)
+                   ? 1 : 0;
+  }
+  midpoint_exponentials(m_iv.data(), mid.data(), known.data(), count);
+  const double* dP = c.dP;
+  for (std::size_t k = 0; k < count; ++k)
+    if (known[k]) choose_pressure(m_iv[k], mid[k], t.P[a[k]], t.P[b[k]], dP[a[k]], dP[b[k]]);
+}
+
+RADMODE_FLATTEN void Structure::RowSubset::log_values_at(const std::size_t* interval, const double* t,
+                                         std::size_t count, StructureValues* out,
+                                         unsigned char* logs) const {
+  for (std::size_t k = 0; k < count; ++k) {
+    const Interval& iv = m_iv[interval[k]];
+    const double tk = t[k];
+    if (tk > 0.0 && tk < 1.0) {
+      if (iv.m.shape == Shape::hermite && iv.P.shape == Shape::log_hermite &&
+          iv.rho.shape == Shape::log_hermite) {
+        logs[k] = common_log_values(iv, tk, out[k]);
+      } else {
+        logs[k] = static_cast<unsigned char>(log_values_inside(iv, tk, out[k]));
+      }
+      continue;
+    }
+    // An end: the curves' end values (the log for a log-space curve).
+    const bool left = tk == 0.0;
+    const Basis unused_b = basis(tk);
+    double unused = 0;
+    out[k] = {left ? iv.m.f0 : iv.m.f1, left ? iv.P.f0 : iv.P.f1, left ? iv.rho.f0 : iv.rho.f1,
+              left ? iv.g0 : iv.g1};
+    unsigned flags = 0;
+    if (log_argument(iv.P, tk, unused_b, unused)) flags |= log_P;
+    if (log_argument(iv.rho, tk, unused_b, unused)) flags |= log_rho;
+    logs[k] = static_cast<unsigned char>(flags);
+  }
 }
 
 inline std::pair<double, double> Structure::eval(const Curve& c, double t, const Basis& b) {

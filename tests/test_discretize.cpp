@@ -213,6 +213,62 @@ TEST_CASE("every_other_row equals the structure of the same rows prepared from s
     }
 }
 
+TEST_CASE("Structure::RowSubset: every_other_row's log values, bit for bit") {
+  // The interpolation-error estimate evaluates every_other_row's interpolation through
+  // RowSubset, which builds only its curves; RowSubset promises log_values_at of
+  // every_other_row(s) bit for bit. Cases: polytropes (zero surface density and pressure:
+  // the power law and the linear fallbacks), one with a discontinuity, an odd number of
+  // intervals, both inner conditions, a uniform sphere with its centre extended.
+  GeneratorOptions g;
+  std::vector<std::pair<StellarModel, InnerCondition>> cases;
+  g.points = 101;
+  cases.emplace_back(with_discontinuity(make_polytrope(1.5, g), 40), InnerCondition::centre);
+  cases.emplace_back(with_discontinuity(make_polytrope(3.0, g), 41), InnerCondition::rigid);
+  g.points = 200;
+  cases.emplace_back(make_polytrope(3.0, g), InnerCondition::centre);
+  g.points = 57;
+  cases.emplace_back(make_polytrope(1.0, g), InnerCondition::rigid);
+  cases.emplace_back(test::uniform_sphere(test::uniform_mesh(31, 0.2), 1.4), InnerCondition::centre);
+  for (const auto& [model, inner] : cases) {
+    const Structure s(model, inner);
+    const auto half = every_other_row(s);
+    REQUIRE(half.has_value());
+    const auto kept = every_other_node_keeping(s.interval_count(), s.discontinuity_nodes());
+    const Structure::RowSubset sub(s, kept);
+    REQUIRE(sub.interval_count() == half->interval_count());
+    CHECK(sub.table_rows() == half->table().size());
+    std::vector<std::size_t> iv;
+    std::vector<double> t;
+    for (std::size_t k = 0; k < sub.interval_count(); ++k)
+      for (const double tk : {1e-9, 0.25, 1.0 / 3.0, 0.5, 0.71, 1.0 - 1e-12, 0.0, 1.0}) {
+        iv.push_back(k);
+        t.push_back(tk);
+      }
+    std::vector<StructureValues> a(t.size()), b(t.size());
+    std::vector<unsigned char> la(t.size()), lb(t.size());
+    sub.log_values_at(iv.data(), t.data(), t.size(), a.data(), la.data());
+    half->log_values_at(iv.data(), t.data(), t.size(), b.data(), lb.data());
+    std::size_t mismatches = 0;
+    for (std::size_t p = 0; p < t.size(); ++p) {
+      // At the ends a zero surface density is +0 in RowSubset (documented); equal as numbers.
+      if (la[p] != lb[p] || a[p].m != b[p].m || a[p].P != b[p].P || a[p].rho != b[p].rho ||
+          a[p].gamma1 != b[p].gamma1)
+        ++mismatches;
+      if (t[p] > 0.0 && t[p] < 1.0 &&
+          (std::signbit(a[p].rho) != std::signbit(b[p].rho) ||
+           std::signbit(a[p].P) != std::signbit(b[p].P)))
+        ++mismatches;
+    }
+    CHECK(mismatches == 0);
+  }
+  // A node list other than every other node from 0 to the surface is refused.
+  g.points = 40;
+  const Structure s(make_polytrope(3.0, g));
+  CHECK_THROWS_AS(Structure::RowSubset(s, {0, 2, 2, s.interval_count()}), UsageError);
+  CHECK_THROWS_AS(Structure::RowSubset(s, {1, s.interval_count()}), UsageError);
+  CHECK_THROWS_AS(Structure::RowSubset(s, {0, 4}), UsageError);
+}
+
 TEST_CASE("Dirichlet ends remove exactly the end rows and columns of the free pencil") {
   // Essential (Dirichlet) conditions by elimination (common practice): fixing u = 0 at an end
   // drops that unknown's row and column and changes nothing else; on fine and coarse meshes.

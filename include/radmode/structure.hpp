@@ -132,6 +132,8 @@ public:
   bool has_nabla_ad() const noexcept { return m_has_nabla_ad; }
   InnerCondition inner() const noexcept { return m_inner; }
 
+  class RowSubset;
+
   /// The prepared table (with the added centre point when extended_centre()).
   const StellarModel& table() const noexcept { return m_table; }
   /// Table row at the left / right end of interval i.
@@ -168,6 +170,38 @@ private:
     double r0, r1, g0, g1, na0, na1;
     Curve m, P, rho;
   };
+  /// The table columns an interval is built from: the table's (nabla_ad null when absent) and
+  /// the per-row values of m_row's layout.
+  struct Columns {
+    const double *r, *m, *P, *rho, *gamma1, *nabla_ad;
+    const double *dm, *dP, *lnrho, *lnP, *dlnP, *dlnrho;
+  };
+  /// The interval between rows j and j1 of c (d ln rho/dr at dlnrho[d0], dlnrho[d1]; `before`
+  /// the row before j in the same table when has_before), as prepare() builds it, into iv.
+  /// Returns true when the pressure shape is left to choose_pressure; then the logs (or, for a
+  /// curve not in log space, the values) of P and rho at t = 1/2 are stored in v.
+  static bool build_interval(Interval& iv, StructureValues& v, const Columns& c, std::size_t j,
+                             std::size_t j1, std::size_t d0, std::size_t d1, bool has_before,
+                             std::size_t before);
+  /// For the intervals with `known` set: exp of the logs build_interval stored, in one loop.
+  static void midpoint_exponentials(const Interval* iv, StructureValues* mid_values,
+                                    const unsigned char* known, std::size_t count);
+  /// The choice between iv's log cubic for P and the linear cubic with end values P0, P1 and
+  /// end derivatives dP0, dP1 [dyn cm^-3] (see prepare); completes the midpoint values v.
+  static void choose_pressure(Interval& iv, StructureValues& v, double P0, double P1,
+                              double dP0, double dP1);
+  /// log_values_inside for an interval of the common shapes (m hermite, P and rho
+  /// log_hermite), without looking at the shapes: the same arithmetic. Returns the flags.
+  static unsigned char common_log_values(const Interval& iv, double t, StructureValues& out) {
+    const Basis b = basis(t);
+    out.m = hermite(iv.m, b);
+    out.gamma1 = (1.0 - t) * iv.g0 + t * iv.g1;
+    out.P = hermite(iv.P, b);
+    out.rho = hermite(iv.rho, b);
+    return log_P | log_rho;
+  }
+  /// log_values for 0 < t < 1 on one interval (Structure::log_values' arithmetic).
+  static unsigned log_values_inside(const Interval& iv, double t, StructureValues& out);
   /// Cubic Hermite basis at one t: values h00, h10, h01, h11 and their t-derivatives.
   struct Basis {
     double h00, h10, h01, h11, d00, d10, d01, d11;
@@ -231,6 +265,32 @@ private:
   double m_mass = 0, m_surface_P = 0;
   bool m_extended = false, m_has_nabla_ad = false;
   InnerCondition m_inner = InnerCondition::centre;
+};
+
+/// every_other_row's interpolation without its Structure: only the curves of its intervals,
+/// built with the same arithmetic from the rows of the full structure (no copy of the table,
+/// no validation, no node or discontinuity lists), for log_values_at. The interpolation-error
+/// estimate of solve_modes evaluates it at the model's midpoints and dropped rows.
+class Structure::RowSubset {
+public:
+  /// The intervals between the base nodes `kept` of `full` (every_other_node_keeping(
+  /// full.interval_count(), full.discontinuity_nodes()): increasing, from 0 to
+  /// interval_count()); with those nodes, the intervals of every_other_row(full). Throws
+  /// UsageError for another list.
+  RowSubset(const Structure& full, const std::vector<std::size_t>& kept);
+  std::size_t interval_count() const noexcept { return m_iv.size(); }
+  /// The number of rows of every_other_row(full)'s table (every_other_row gives nullopt
+  /// below StellarModel::min_points).
+  std::size_t table_rows() const noexcept { return m_table_rows; }
+  /// Structure::log_values_at (without `values`) of every_other_row(full), bit for bit, for
+  /// 0 < t < 1. At t = 0 and 1 the values are the curves' end values: the rows', except that
+  /// a zero surface density is +0.
+  void log_values_at(const std::size_t* interval, const double* t, std::size_t count,
+                     StructureValues* out, unsigned char* logs) const;
+
+private:
+  std::vector<Interval> m_iv;
+  std::size_t m_table_rows = 0;
 };
 
 // Inline so that the form samplers (discretize.cpp) compile the evaluation into their loops.

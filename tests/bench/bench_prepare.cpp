@@ -7,6 +7,8 @@
 //   structure        Structure s(model)                       (validation included)
 //   form             make_stellar_form(s, regular)
 //   every_other_row  every_other_row(s)
+//   row_subset       Structure::RowSubset(s, every other node): every_other_row's curves
+//                    only, as the interpolation-error estimate builds them
 //   form_from_half   make_stellar_form(s, regular, &half)     (interpolation-error estimate)
 //   assemble_fine    assemble(form, all nodes)
 //   assemble_coarse  assemble(form, every other node)
@@ -97,6 +99,9 @@ int main(int argc, char** argv) {
   });
   row("form", [&] { sink += make_stellar_form(s, SurfaceCondition::regular).a[1]; });
   row("every_other_row", [&] { sink += every_other_row(s)->node_r()[1]; });
+  const std::vector<std::size_t> kept =
+      every_other_node_keeping(s.interval_count(), s.discontinuity_nodes());
+  row("row_subset", [&] { sink += static_cast<double>(Structure::RowSubset(s, kept).table_rows()); });
   row("form_from_half",
       [&] { sink += make_stellar_form(s, SurfaceCondition::regular, &*half).a[1]; });
   row("assemble_fine", [&] { sink += assemble(form, fine).k_diag[1]; });

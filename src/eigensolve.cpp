@@ -15,6 +15,7 @@
 #include <cmath>
 #include <limits>
 #include <sstream>
+#include <type_traits>
 
 namespace radmode {
 
@@ -1219,37 +1220,55 @@ std::vector<double> interpolation_change(const Structure& s, const Structure::Ro
     }
     // The divisions of A in a loop of their own (two per instruction).
     for (std::size_t ie = 0; ie < i1 - i0; ++ie) A[ie] /= six_h[ie];
-    // One pass per mode over the block, elements and inner nodes (a block's end nodes are
-    // kept: no change there) together; two running sums, so that the additions of
-    // neighbouring elements do not wait for each other: the even and the odd elements in the
-    // two lanes of a Pair (the same operations as on doubles, lane by lane).
+    // One pass per group of up to four modes over the block (the weights loaded once for
+    // the group; each mode's arithmetic and order of additions as in a pass of its own),
+    // elements and inner nodes (a block's end nodes are kept: no change there) together; two
+    // running sums per mode, so that the additions of neighbouring elements do not wait for
+    // each other: the even and the odd elements in the two lanes of a Pair (the same
+    // operations as on doubles, lane by lane).
     const std::size_t ne = i1 - i0;
     using detail::Pair;
     using detail::load2;
-    for (std::size_t e = 0; e < n_modes; ++e) {
-      const double lambda = pairs[e].lambda;
-      const double* v = u.data() + e * n_nodes + i0; // v[j] = u at node i0 + j
-      // Element ie (and ie + 1 in the second lane) and node jn (and jn + 1), on T = double
-      // or Pair, with load(p) = *p or the Pair {p[0], p[1]}.
-      auto element = [&](std::size_t ie, auto load) {
-        const auto v0 = load(v + ie), v1 = load(v + ie + 1);
+    auto pass = [&](auto group, std::size_t e0) {
+      constexpr std::size_t G = decltype(group)::value;
+      std::array<double, G> lambda;
+      std::array<const double*, G> v; // v[g][j] = u of mode e0 + g at node i0 + j
+      for (std::size_t g = 0; g < G; ++g) {
+        lambda[g] = pairs[e0 + g].lambda;
+        v[g] = u.data() + (e0 + g) * n_nodes + i0;
+      }
+      // Element ie (and ie + 1 in the second lane) and node jn (and jn + 1) of mode e0 + g,
+      // on T = double or Pair, with load(p) = *p or the Pair {p[0], p[1]}.
+      auto element = [&](std::size_t g, std::size_t ie, auto load) {
+        const auto v0 = load(v[g] + ie), v1 = load(v[g] + ie + 1);
         const auto du = v1 - v0, um = 0.5 * (v0 + v1);
         return load(&A[ie]) * du * du + load(&Bm[ie]) * um * du +
-               (load(&Cm[ie]) - lambda * load(&Dm[ie])) * um * um;
+               (load(&Cm[ie]) - lambda[g] * load(&Dm[ie])) * um * um;
       };
-      auto node = [&](std::size_t jn, auto load) {
-        const auto vj = load(v + jn);
-        return load(&Bn[jn]) * vj * (load(v + jn + 1) - load(v + jn - 1)) +
-               (load(&Cn[jn]) - lambda * load(&Dn[jn])) * vj * vj;
+      auto node = [&](std::size_t g, std::size_t jn, auto load) {
+        const auto vj = load(v[g] + jn);
+        return load(&Bn[jn]) * vj * (load(v[g] + jn + 1) - load(v[g] + jn - 1)) +
+               (load(&Cn[jn]) - lambda[g] * load(&Dn[jn])) * vj * vj;
       };
       const auto one = [](const double* at) { return *at; };
       const auto two = [](const double* at) { return load2(at); };
-      Pair sums = {element(0, one), 0.0}; // lane 0: even elements, lane 1: odd
+      std::array<Pair, G> sums; // lane 0: even elements, lane 1: odd
+      for (std::size_t g = 0; g < G; ++g) sums[g] = Pair{element(g, 0, one), 0.0};
       std::size_t k = 1;
-      for (; k + 2 <= ne; k += 2) sums += element(k, two) + node(k, two);
-      double even = sums[0];
-      if (k < ne) even += element(k, one) + node(k, one);
-      change[e] += even + sums[1];
+      for (; k + 2 <= ne; k += 2)
+        for (std::size_t g = 0; g < G; ++g) sums[g] += element(g, k, two) + node(g, k, two);
+      for (std::size_t g = 0; g < G; ++g) {
+        double even = sums[g][0];
+        if (k < ne) even += element(g, k, one) + node(g, k, one);
+        change[e0 + g] += even + sums[g][1];
+      }
+    };
+    for (std::size_t e0 = 0; e0 < n_modes;) {
+      const std::size_t rest = n_modes - e0;
+      if (rest >= 4) pass(std::integral_constant<std::size_t, 4>{}, e0), e0 += 4;
+      else if (rest == 3) pass(std::integral_constant<std::size_t, 3>{}, e0), e0 += 3;
+      else if (rest == 2) pass(std::integral_constant<std::size_t, 2>{}, e0), e0 += 2;
+      else pass(std::integral_constant<std::size_t, 1>{}, e0), e0 += 1;
     }
   }
   return change;

@@ -384,8 +384,11 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
     gm_r[i] = r[i] > 0.0 ? gm_r[i] : 0.0;
   }
   // (a loop of its own: std::sqrt may set errno, which keeps a loop from vectorizing)
-  for (std::size_t i = 0; i < n; ++i) c_s[i] = std::sqrt(g1[i] * p_rho[i]);
-  for (std::size_t i = 1; i < n; ++i) cell[i] = 2.0 * (r[i] - r[i - 1]) / (c_s[i - 1] + c_s[i]);
+  const bool checks = options.checks;
+  if (checks) {
+    for (std::size_t i = 0; i < n; ++i) c_s[i] = std::sqrt(g1[i] * p_rho[i]);
+    for (std::size_t i = 1; i < n; ++i) cell[i] = 2.0 * (r[i] - r[i - 1]) / (c_s[i - 1] + c_s[i]);
+  }
   if (!has_u)
     for (std::size_t i = 0; i < n; ++i) u_ratio[i] = p_rho[i] / (g1[i] - 1.0);
   const double* const u_model = has_u ? model.u.data() : u_ratio;
@@ -415,7 +418,7 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
   bool g1_above_1 = g1[0] > 1.0;
   bool p_monotone = true, m_monotone = true;
   for (std::size_t i = 1; i < n; ++i) {
-    if (r[i] - r[i - 1] != 0.0) {
+    if (checks && r[i] - r[i - 1] != 0.0) {
       if (c_s[i - 1] + c_s[i] == 0.0)
         sound_infinite = true;
       else
@@ -477,7 +480,9 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
     f_rad = fa;
     f_model = fb;
   }
-  d.t_sound_s = sound_infinite ? std::numeric_limits<double>::infinity() : t_sound;
+  d.t_sound_s = !checks         ? std::numeric_limits<double>::quiet_NaN()
+                : sound_infinite ? std::numeric_limits<double>::infinity()
+                                 : t_sound;
   if (!(p_int > 0.0))
     throw Error(ErrorKind::numerical,
                 model.source + ": the pressure integral is zero; Gamma1 averages are undefined");
@@ -495,8 +500,9 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
   d.omega2_homologous = 9.0 * excess_int / inertia;
   d.sigma2_homologous = d.omega2_homologous * R * R * R / (G * M);
 
-  hse_residual(model, options.hse_pressure_floor * p_max, p_monotone, m_monotone, cell, u_ratio,
-               d);
+  if (checks)
+    hse_residual(model, options.hse_pressure_floor * p_max, p_monotone, m_monotone, cell,
+                 u_ratio, d);
 
   // Post-Newtonian coefficient.
   d.compactness = 2.0 * G * M / (R * constants::c_light * constants::c_light);
@@ -524,7 +530,9 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
          "the model does not reach r = 0 (innermost point at r = " + num(r[0]) +
              " cm, m = " + num(m[0]) + " g); central density, the mass check and the integrals "
              "cover the tabulated part only");
-  if (d.hse_points_checked == 0)
+  if (!checks) {
+    // (not looked at: no warnings about them)
+  } else if (d.hse_points_checked == 0)
     warn(d, "hse_unchecked", "no interior point could be checked for hydrostatic equilibrium");
   else if (d.hse_residual_max > options.hse_warn)
     warn(d, "hse_residual",
@@ -534,7 +542,7 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
     warn(d, "mass_inconsistent",
          "m column and integral of 4 pi r^2 rho dr differ by a relative " +
              num(d.mass_consistency) + " (threshold " + num(options.mass_warn) + ")");
-  if (!std::isfinite(d.t_sound_s))
+  if (checks && !std::isfinite(d.t_sound_s))
     warn(d, "sound_time_infinite",
          "the sound speed vanishes on two adjacent points; the sound-crossing time is infinite");
   // (a relative 1e-12 below 4/3 is rounding in the averages of a Gamma1 = 4/3 table)

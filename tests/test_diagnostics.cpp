@@ -202,6 +202,37 @@ TEST_CASE("hydrostatic residual finds a perturbed point and names its line") {
   CHECK(warned);
 }
 
+TEST_CASE("without the checks: the same masses, time scales, integrals and criteria") {
+  // (What `radmode track` asks for.) A model with a 5 % pressure error at one point: the
+  // checks warn about it; without them nothing else changes, bit for bit.
+  StellarModel model = polytrope_model(1.5, 201, c::M_sun, c::R_sun, 5.0 / 3.0);
+  model.P[120] *= 1.05;
+  DiagnosticsOptions off;
+  off.checks = false;
+  const ModelDiagnostics a = diagnose(model), b = diagnose(model, off);
+  CHECK(a.hse_residual_max > 0.1);
+  CHECK(b.hse_residual_max == 0.0);
+  CHECK(b.hse_points_checked == 0);
+  CHECK(std::isfinite(a.t_sound_s));
+  CHECK(std::isnan(b.t_sound_s));
+  bool warned = false;
+  for (const auto& w : a.warnings) warned = warned || w.code == "hse_residual";
+  CHECK(warned);
+  for (const auto& w : b.warnings) {
+    CHECK(w.code != "hse_residual");
+    CHECK(w.code != "hse_unchecked");
+  }
+  CHECK(a.mass_g == b.mass_g);
+  CHECK(a.radius_cm == b.radius_cm);
+  CHECK(a.t_dyn_s == b.t_dyn_s);
+  CHECK(a.gamma1_pressure_weighted == b.gamma1_pressure_weighted);
+  CHECK(a.mass_consistency == b.mass_consistency);
+  CHECK(a.omega2_homologous == b.omega2_homologous);
+  CHECK(a.pn_coefficient == b.pn_coefficient);
+  CHECK(a.gamma1_critical_pn == b.gamma1_critical_pn);
+  CHECK(a.pn_unstable == b.pn_unstable);
+}
+
 TEST_CASE("mass inconsistency is reported") {
   StellarModel model = uniform_sphere_model(201, c::M_sun, c::R_sun, 5.0 / 3.0);
   CHECK(diagnose(model).mass_consistency < 1e-4);

@@ -77,6 +77,11 @@ struct DiagnosticsOptions {
   double hse_pressure_floor = 1e-10; ///< skip points with P below this times max P, in [0, 1)
   double compactness_warn = 0.1;     ///< warn that 1PN is unreliable above this (> 0)
   PnEnergy pn_energy = PnEnergy::radiation_limit;
+  /// The checks: the hydrostatic-equilibrium residual and the sound-crossing time, with their
+  /// warnings. false skips them (hse_* stay 0, hse_points_checked 0, t_sound_s NaN; no
+  /// hse_unchecked, hse_residual or sound_time_infinite warning) for callers that read only
+  /// the masses, time scales, integrals and the stability criteria -- `radmode track`.
+  bool checks = true;
 
   /// Throws UsageError naming the option, its value and the allowed range.
   void validate() const;

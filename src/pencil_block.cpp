@@ -225,8 +225,11 @@ public:
   /// quotient and ymy[b] = y^T M y. The vectors are not changed until accept(). With
   /// `keep_rows`, the row products of y that the sweep forms anyway (K y, M y, and |K||y|,
   /// |M||y| from the same terms) are kept for residuals().
+  /// (The rows are kept only while they fit kept_rows_max_bytes: beyond that, writing and
+  /// reading them back costs more memory traffic than the stencil pass they replace.)
   void step(const double* s, double* q, double* ymy, bool keep_rows) {
-    if (keep_rows) step_impl<true>(s, q, ymy);
+    m_rows_kept = keep_rows && m_n * row_stride * sizeof(double) <= kept_rows_max_bytes;
+    if (m_rows_kept) step_impl<true>(s, q, ymy);
     else step_impl<false>(s, q, ymy);
   }
 
@@ -247,17 +250,23 @@ public:
       rh[b / 2][b % 2] = b < B ? rho[b] : 0.0;
       arh[b / 2][b % 2] = std::abs(rh[b / 2][b % 2]);
     }
+    auto add = [&](std::size_t h, Pair kx, Pair mx, Pair ak, Pair am) {
+      const Pair e = kx - rh[h] * mx, a = ak + arh[h] * am;
+      r2[h] += e * e;
+      k2[h] += kx * kx;
+      m2[h] += mx * mx;
+      a2[h] += a * a;
+    };
+    if (!m_rows_kept) // the stencil pass over the vectors (large meshes)
+      for_products(t_work.x.data(), [&](std::size_t h, Pair, Pair kx, Pair mx, Pair ak, Pair am) {
+        add(h, kx, mx, ak, am);
+      });
     const double* const rows = t_work.rows.data();
-    for (std::size_t j = 0; j < m_n; ++j) {
+    for (std::size_t j = 0; m_rows_kept && j < m_n; ++j) {
       const double* const r = rows + j * row_stride;
       for (std::size_t h = 0; h < H; ++h) {
-        const Pair kx = load2(r + 2 * h), mx = load2(r + P + 2 * h);
-        const Pair ak = load2(r + 2 * P + 2 * h), am = load2(r + 3 * P + 2 * h);
-        const Pair e = kx - rh[h] * mx, a = ak + arh[h] * am;
-        r2[h] += e * e;
-        k2[h] += kx * kx;
-        m2[h] += mx * mx;
-        a2[h] += a * a;
+        add(h, load2(r + 2 * h), load2(r + P + 2 * h), load2(r + 2 * P + 2 * h),
+            load2(r + 3 * P + 2 * h));
       }
     }
     for (std::size_t b = 0; b < B; ++b) {
@@ -276,6 +285,9 @@ public:
 
 private:
   static constexpr std::size_t row_stride = 4 * P; ///< doubles per row of t_work.rows
+  /// Largest kept row products (bench_bench_solve: kept rows are faster at 20,000 points,
+  /// 3.8 MB for 5 or 6 vectors; slower at 200,000, 38 MB).
+  static constexpr std::size_t kept_rows_max_bytes = std::size_t{8} << 20;
 
   template <bool Keep> void step_impl(const double* s, double* q, double* ymy) {
     const std::size_t n = m_n;
@@ -426,6 +438,7 @@ private:
   std::size_t m_n;
   double m_kmax, m_mmax;
   Pair m_scale[H];
+  bool m_rows_kept = false; ///< the last step kept its row products (residuals() reads them)
 };
 
 /// rayleigh_iterate for one block of B vectors (see pencil_block.hpp for the rules).

@@ -101,12 +101,12 @@ thread_local Workspace t_work;
 
 /// Inertia counts for B shifts: the arithmetic of inertia_below (discretize.cpp), per shift,
 /// two shifts to an instruction (Pair; an odd B gets a dummy shift whose count is dropped).
-/// The operations per shift are the same, in the same order, so are the counts. Without
-/// A zero pivot becomes -1e-300 behind a branch (rare, so predicted: the select stays off the
-/// chain of dependent divisions, which bounds the speed for up to four shifts).
+/// The operations per shift are the same, in the same order, so are the counts. A zero pivot
+/// becomes -1e-300 behind a branch (rare, so predicted: the select stays off the chain of
+/// dependent divisions, which bounds the speed for up to four shifts).
 template <std::size_t B> void count_block(const TridiagonalPencil& p, const double* s, int* out) {
   constexpr std::size_t H = (B + 1) / 2;
-    const std::size_t n = p.size();
+  const std::size_t n = p.size();
   const double* const kd = p.k_diag.data();
   const double* const md = p.m_diag.data();
   const double* const ko = p.k_off.data();
@@ -242,8 +242,8 @@ public:
   /// ||K x - rho M x|| / (||K x|| + |rho| ||M x||) per column, the norms, and the residual's
   /// round-off level eps || |K||x| + |rho||M||x| || / (same denominator): res[b] is reported as
   /// 0 when below ten times that level (iterating cannot lower it further). x: the vectors
-  /// accepted from a step taken with keep_rows (a light pass over its kept row products; the
-  /// same sums, in the same order, as computing them from x).
+  /// accepted from the last step: a light pass over its kept row products when it kept them,
+  /// else the stencil pass over x (the same sums, in the same order, either way).
   void residuals(const double* rho, double* res, RqiStats* stats) const {
     Pair r2[H] = {}, k2[H] = {}, m2[H] = {}, a2[H] = {}, rh[H] = {}, arh[H] = {};
     for (std::size_t b = 0; b < P; ++b) {
@@ -257,17 +257,18 @@ public:
       m2[h] += mx * mx;
       a2[h] += a * a;
     };
-    if (!m_rows_kept) // the stencil pass over the vectors (large meshes)
+    if (m_rows_kept) {
+      const double* const rows = t_work.rows.data();
+      for (std::size_t j = 0; j < m_n; ++j) {
+        const double* const r = rows + j * row_stride;
+        for (std::size_t h = 0; h < H; ++h)
+          add(h, load2(r + 2 * h), load2(r + P + 2 * h), load2(r + 2 * P + 2 * h),
+              load2(r + 3 * P + 2 * h));
+      }
+    } else { // the stencil pass over the vectors (large meshes)
       for_products(t_work.x.data(), [&](std::size_t h, Pair, Pair kx, Pair mx, Pair ak, Pair am) {
         add(h, kx, mx, ak, am);
       });
-    const double* const rows = t_work.rows.data();
-    for (std::size_t j = 0; m_rows_kept && j < m_n; ++j) {
-      const double* const r = rows + j * row_stride;
-      for (std::size_t h = 0; h < H; ++h) {
-        add(h, load2(r + 2 * h), load2(r + P + 2 * h), load2(r + 2 * P + 2 * h),
-            load2(r + 3 * P + 2 * h));
-      }
     }
     for (std::size_t b = 0; b < B; ++b) {
       const std::size_t h = b / 2, i = b % 2;

@@ -3,7 +3,7 @@
 of the same linear finite-element discretization, on the same model files.
 
     /usr/bin/python3 tests/bench/track_scipy.py --radmode build/radmode [--models 1000]
-        [--points 2000] [--count 5] [--baseline same|simple|both]
+        [--points 2000] [--count 5] [--baseline same|simple|both] [--repeat 1]
 
 Models: n = 3 polytropes written by `radmode make polytrope` (Gamma1 from 1.70 down to 1.40,
 radius 1 to 10 Rsun: the same family as tests/bench/bench_track.cpp).
@@ -62,12 +62,16 @@ src/pencil_block.cpp), written with NumPy array operations over all table interv
 radmode side: `radmode track --jobs 1 --quiet --list LIST` (whole program, one thread).
 The script prints models/s for radmode and each baseline that ran (wall clock and CPU time:
 on a shared machine the CPU time is the fairer measure), the ratios, and for each baseline
-the largest relative difference of the periods found by it and by radmode.
+the largest relative difference of the periods found by it and by radmode. With
+`--repeat R` it runs R rounds (radmode, then each baseline) and prints every round and the
+median and range of the rounds' CPU-time ratios: the speed of a shared machine drifts by
+several per cent between runs, and a round compares runs made one after the other.
 """
 import argparse
 import csv
 import os
 import resource
+import statistics
 import subprocess
 import sys
 import tempfile
@@ -424,6 +428,19 @@ def solve_same(path, count):
 BASELINES = {"same": solve_same, "simple": solve_simple}
 
 
+def run_radmode(a, lst, out):
+    """One `radmode track --jobs 1` over the list: (wall s, CPU s)."""
+    c0 = resource.getrusage(resource.RUSAGE_CHILDREN)
+    t0 = time.perf_counter()
+    rc = subprocess.run([a.radmode, "track", "--jobs", "1", "--quiet", "--count",
+                         str(a.count), "--list", lst, "--output", out]).returncode
+    wall = time.perf_counter() - t0
+    c1 = resource.getrusage(resource.RUSAGE_CHILDREN)
+    if rc != 0:
+        print("track_scipy: radmode track exited with", rc, file=sys.stderr)
+    return wall, (c1.ru_utime + c1.ru_stime) - (c0.ru_utime + c0.ru_stime)
+
+
 def main():
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     ap.add_argument("--radmode", required=True)
@@ -433,10 +450,18 @@ def main():
     ap.add_argument("--baseline", choices=["same", "simple", "both"], default="same",
                     help="same: radmode's discretization (default); simple: the earlier "
                          "log-linear, two-point baseline; both: one after the other")
+    ap.add_argument("--repeat", type=int, default=1,
+                    help="rounds of radmode then each baseline (default 1); each round's ratio "
+                         "compares runs made one after the other, and with several rounds the "
+                         "median and range of the rounds' ratios are printed (the speed of a "
+                         "shared machine drifts between and within runs)")
     a = ap.parse_args()
+    if a.repeat < 1:
+        ap.error("--repeat: expected at least 1")
     names = ["same", "simple"] if a.baseline == "both" else [a.baseline]
 
-    results = {}
+    rounds = []  # per round: radmode (wall, cpu) and {baseline: (wall, cpu)}
+    agreement = {}
     with tempfile.TemporaryDirectory(prefix="radmode-track-scipy-") as d:
         paths = []
         for i in range(a.models):
@@ -451,46 +476,50 @@ def main():
             f.write("\n".join(paths) + "\n")
         out = os.path.join(d, "track.csv")
 
-        c0 = resource.getrusage(resource.RUSAGE_CHILDREN)
-        t0 = time.perf_counter()
-        rc = subprocess.run([a.radmode, "track", "--jobs", "1", "--quiet", "--count",
-                             str(a.count), "--list", lst, "--output", out]).returncode
-        t_radmode = time.perf_counter() - t0
-        c1 = resource.getrusage(resource.RUSAGE_CHILDREN)
-        c_radmode = (c1.ru_utime + c1.ru_stime) - (c0.ru_utime + c0.ru_stime)
-        if rc != 0:
-            print("track_scipy: radmode track exited with", rc, file=sys.stderr)
-
-        with open(out, newline="") as f:
-            rows = list(csv.reader(l for l in f if not l.startswith("#")))
-        head, rows = rows[0], rows[1:]
-        cols = [head.index("period_d_%d" % k) for k in range(a.count)]
-
-        for name in names:
-            solve = BASELINES[name]
-            t0, p0 = time.perf_counter(), time.process_time()
-            periods = [solve(p, a.count) for p in paths]
-            wall, cpu = time.perf_counter() - t0, time.process_time() - p0
-            worst, compared = 0.0, 0
-            for row, ps in zip(rows, periods):
-                for c, p in zip(cols, ps):
-                    if row[c]:
-                        worst = max(worst, abs(float(row[c]) / p - 1))
-                        compared += 1
-            results[name] = (wall, cpu, worst, compared)
+        for k in range(a.repeat):
+            radmode_times = run_radmode(a, lst, out)
+            if k == 0:
+                with open(out, newline="") as f:
+                    rows = list(csv.reader(l for l in f if not l.startswith("#")))
+                head, rows = rows[0], rows[1:]
+                cols = [head.index("period_d_%d" % k) for k in range(a.count)]
+            baseline_times = {}
+            for name in names:
+                solve = BASELINES[name]
+                t0, p0 = time.perf_counter(), time.process_time()
+                periods = [solve(p, a.count) for p in paths]
+                baseline_times[name] = (time.perf_counter() - t0, time.process_time() - p0)
+                if k == 0:
+                    worst, compared = 0.0, 0
+                    for row, ps in zip(rows, periods):
+                        for c, p in zip(cols, ps):
+                            if row[c]:
+                                worst = max(worst, abs(float(row[c]) / p - 1))
+                                compared += 1
+                    agreement[name] = (worst, compared)
+            rounds.append((radmode_times, baseline_times))
 
     n = a.models
     print("models: %d polytropes n = 3, %d points, %d modes, one core" % (n, a.points, a.count))
-    print("radmode track --jobs 1      : wall %.3f s = %.1f models/s; CPU %.3f s = %.1f "
-          "models/CPU-s" % (t_radmode, n / t_radmode, c_radmode, n / c_radmode))
+    for k, ((t_radmode, c_radmode), baseline_times) in enumerate(rounds):
+        if a.repeat > 1:
+            print("round %d:" % (k + 1))
+        print("radmode track --jobs 1      : wall %.3f s = %.1f models/s; CPU %.3f s = %.1f "
+              "models/CPU-s" % (t_radmode, n / t_radmode, c_radmode, n / c_radmode))
+        for name in names:
+            wall, cpu = baseline_times[name]
+            print("NumPy/SciPy eigsh, %-6s baseline: wall %.3f s = %.1f models/s; CPU %.3f s = "
+                  "%.1f models/CPU-s" % (name, wall, n / wall, cpu, n / cpu))
+            print("  radmode / SciPy (%s) speed: %.1fx (wall), %.1fx (CPU time)"
+                  % (name, wall / t_radmode, cpu / c_radmode))
     for name in names:
-        wall, cpu, worst, compared = results[name]
-        print("NumPy/SciPy eigsh, %-6s baseline: wall %.3f s = %.1f models/s; CPU %.3f s = "
-              "%.1f models/CPU-s" % (name, wall, n / wall, cpu, n / cpu))
-        print("  radmode / SciPy (%s) speed: %.1fx (wall), %.1fx (CPU time)"
-              % (name, wall / t_radmode, cpu / c_radmode))
-        print("  largest relative period difference (%s): %.2e over %d periods"
+        worst, compared = agreement[name]
+        print("largest relative period difference (%s): %.2e over %d periods"
               % (name, worst, compared))
+        if a.repeat > 1:
+            ratios = sorted(r[1][name][1] / r[0][1] for r in rounds)
+            print("radmode / SciPy (%s), CPU time, %d rounds: median %.1fx, range %.1f-%.1fx"
+                  % (name, a.repeat, statistics.median(ratios), ratios[0], ratios[-1]))
 
 
 if __name__ == "__main__":

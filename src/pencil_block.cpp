@@ -143,8 +143,9 @@ template <std::size_t B> void count_block(const TridiagonalPencil& p, const doub
 /// is spent on normalizing. A step is two passes: (1) M x, the LDL^T factorization of K - s M
 /// and the forward substitution together (the Thomas algorithm); (2) the diagonal scaling,
 /// the backward substitution and the Rayleigh quotient of y, whose row products are formed as
-/// soon as the backward sweep has passed a row's neighbours (kept, with |K||y| and |M||y| from
-/// the same terms, when a residual is wanted: residuals() is then a light pass over them).
+/// soon as the backward sweep has passed a row's neighbours (when a residual is wanted, K y
+/// and M y are kept and the sums of the norms, with |K||y| and |M||y| from the same terms,
+/// formed in the sweep: residuals() is then a light pass over the kept rows).
 /// Values carried from row to row
 /// stay in registers, so the passes run at the latency of their recurrences, which the
 /// independent columns overlap, and the memory traffic per step is a few reads and writes of
@@ -245,47 +246,58 @@ public:
   /// accepted from the last step: a light pass over its kept row products when it kept them,
   /// else the stencil pass over x (the same sums, in the same order, either way).
   void residuals(const double* rho, double* res, RqiStats* stats) const {
-    Pair r2[H] = {}, k2[H] = {}, m2[H] = {}, a2[H] = {}, rh[H] = {}, arh[H] = {};
-    for (std::size_t b = 0; b < P; ++b) {
-      rh[b / 2][b % 2] = b < B ? rho[b] : 0.0;
-      arh[b / 2][b % 2] = std::abs(rh[b / 2][b % 2]);
-    }
-    auto add = [&](std::size_t h, Pair kx, Pair mx, Pair ak, Pair am) {
-      const Pair e = kx - rh[h] * mx, a = ak + arh[h] * am;
-      r2[h] += e * e;
-      k2[h] += kx * kx;
-      m2[h] += mx * mx;
-      a2[h] += a * a;
-    };
-    if (m_rows_kept) {
+    Pair r2[H] = {}, rh[H] = {};
+    for (std::size_t b = 0; b < P; ++b) rh[b / 2][b % 2] = b < B ? rho[b] : 0.0;
+    RowSums sums;
+    if (m_rows_kept) { // r2 from the kept K y and M y; the other sums from the sweep
+      sums = m_sums;
       const double* const rows = t_work.rows.data();
       for (std::size_t j = 0; j < m_n; ++j) {
         const double* const r = rows + j * row_stride;
-        for (std::size_t h = 0; h < H; ++h)
-          add(h, load2(r + 2 * h), load2(r + P + 2 * h), load2(r + 2 * P + 2 * h),
-              load2(r + 3 * P + 2 * h));
+        for (std::size_t h = 0; h < H; ++h) {
+          const Pair e = load2(r + 2 * h) - rh[h] * load2(r + P + 2 * h);
+          r2[h] += e * e;
+        }
       }
     } else { // the stencil pass over the vectors (large meshes)
       for_products(t_work.x.data(), [&](std::size_t h, Pair, Pair kx, Pair mx, Pair ak, Pair am) {
-        add(h, kx, mx, ak, am);
+        const Pair e = kx - rh[h] * mx;
+        r2[h] += e * e;
+        sums.add(h, kx, mx, ak, am);
       });
     }
     for (std::size_t b = 0; b < B; ++b) {
       const std::size_t h = b / 2, i = b % 2;
-      const double denom = std::sqrt(k2[h][i]) + std::abs(rho[b]) * std::sqrt(m2[h][i]);
-      const double floor = denom > 0 ? eps * std::sqrt(a2[h][i]) / denom : 0.0;
+      const double k2 = sums.k2[h][i], m2 = sums.m2[h][i], arho = std::abs(rho[b]);
+      // || |K||x| + |rho||M||x| ||^2 from its three sums (all terms >= 0: no cancellation)
+      const double a2 = sums.aa[h][i] + 2 * arho * sums.am[h][i] + arho * arho * sums.mm[h][i];
+      const double denom = std::sqrt(k2) + arho * std::sqrt(m2);
+      const double floor = denom > 0 ? eps * std::sqrt(a2) / denom : 0.0;
       res[b] = denom > 0 ? std::sqrt(r2[h][i]) / denom : 0.0;
       if (res[b] <= 10 * floor) res[b] = 0.0;
       const double s = scale(b); // the norms of the scaled vector
       stats[b].r_norm = std::sqrt(r2[h][i]) * s;
-      stats[b].kx_norm = std::sqrt(k2[h][i]) * s;
-      stats[b].mx_norm = std::sqrt(m2[h][i]) * s;
-      stats[b].a_norm = std::sqrt(a2[h][i]) * s;
+      stats[b].kx_norm = std::sqrt(k2) * s;
+      stats[b].mx_norm = std::sqrt(m2) * s;
+      stats[b].a_norm = std::sqrt(a2) * s;
     }
   }
 
 private:
-  static constexpr std::size_t row_stride = 4 * P; ///< doubles per row of t_work.rows
+  /// Sums over the rows of a vector's row products K x, M x and of |K||x|, |M||x| (ak, am):
+  /// ||K x||^2, ||M x||^2, and sum ak^2, sum ak am, sum am^2, from which
+  /// || |K||x| + |rho||M||x| ||^2 follows for any rho.
+  struct RowSums {
+    Pair k2[H] = {}, m2[H] = {}, aa[H] = {}, am[H] = {}, mm[H] = {};
+    void add(std::size_t h, Pair kx, Pair mx, Pair ak, Pair amx) {
+      k2[h] += kx * kx;
+      m2[h] += mx * mx;
+      aa[h] += ak * ak;
+      am[h] += ak * amx;
+      mm[h] += amx * amx;
+    }
+  };
+  static constexpr std::size_t row_stride = 2 * P; ///< doubles per row of t_work.rows
   /// Largest kept row products (bench_bench_solve: kept rows are faster at 20,000 points,
   /// 3.8 MB for 5 or 6 vectors; slower at 200,000, 38 MB).
   static constexpr std::size_t kept_rows_max_bytes = std::size_t{8} << 20;
@@ -348,14 +360,15 @@ private:
       store2(y + i, y1[h]);
       y2[h] = ykv[h] = ymv[h] = Pair{0.0, 0.0};
     }
-    // Row products (centre, left, right terms, summed in that order) kept for residuals().
+    // Row products (centre, left, right terms, summed in that order) kept for residuals(),
+    // and their sums (RowSums).
+    RowSums sums;
     auto keep = [&](std::size_t row, std::size_t h, Pair k1, Pair k0, Pair k2, Pair kv, Pair m1,
                     Pair m0, Pair m2, Pair mv) {
       double* const r = rows + row * row_stride + 2 * h;
       store2(r, kv);
       store2(r + P, mv);
-      store2(r + 2 * P, abs2(k1) + abs2(k0) + abs2(k2));
-      store2(r + 3 * P, abs2(m1) + abs2(m0) + abs2(m2));
+      sums.add(h, kv, mv, abs2(k1) + abs2(k0) + abs2(k2), abs2(m1) + abs2(m0) + abs2(m2));
     };
     // Row j of the sweep; kd1, md1: diagonal of row j + 1; ko1, mo1: its upper neighbour.
     auto backward = [&](std::size_t j, double koj, double moj, double kd1, double md1, double ko1,
@@ -390,6 +403,7 @@ private:
       q[b] = ykv[b / 2][b % 2] / ymv[b / 2][b % 2];
       ymy[b] = ymv[b / 2][b % 2];
     }
+    if (Keep) m_sums = sums;
   }
 
   double scale(std::size_t b) const { return m_scale[b / 2][b % 2]; }
@@ -440,6 +454,7 @@ private:
   double m_kmax, m_mmax;
   Pair m_scale[H];
   bool m_rows_kept = false; ///< the last step kept its row products (residuals() reads them)
+  RowSums m_sums;           ///< their sums, when kept
 };
 
 /// rayleigh_iterate for one block of B vectors (see pencil_block.hpp for the rules).

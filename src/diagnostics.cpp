@@ -362,6 +362,10 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
   // limit for a polytrope, where P/rho is proportional to theta). G/r and G m/r are 0 at r = 0.
   // One block of scratch for all of them (uninitialized: every entry used is written first).
   const bool has_u = model.u.size() == n;
+  // stability_only: what the verdicts need (see DiagnosticsOptions), each by the same
+  // arithmetic as the full run; `full` is everything else.
+  const bool full = !options.stability_only;
+  const bool model_energy = full || options.pn_energy == PnEnergy::model;
   std::unique_ptr<double[]> scratch(new double[11 * n]);
   double* const p_rho = scratch.get();
   double* const c_s = p_rho + n;    // sound speed [cm s^-1]
@@ -384,12 +388,12 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
     gm_r[i] = r[i] > 0.0 ? gm_r[i] : 0.0;
   }
   // (a loop of its own: std::sqrt may set errno, which keeps a loop from vectorizing)
-  const bool checks = options.checks;
+  const bool checks = options.checks && full;
   if (checks) {
     for (std::size_t i = 0; i < n; ++i) c_s[i] = std::sqrt(g1[i] * p_rho[i]);
     for (std::size_t i = 1; i < n; ++i) cell[i] = 2.0 * (r[i] - r[i - 1]) / (c_s[i - 1] + c_s[i]);
   }
-  if (!has_u)
+  if (!has_u && model_energy)
     for (std::size_t i = 0; i < n; ++i) u_ratio[i] = p_rho[i] / (g1[i] - 1.0);
   const double* const u_model = has_u ? model.u.data() : u_ratio;
 
@@ -417,7 +421,7 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
   double g1_min = g1[0], p_max = P[0];
   bool g1_above_1 = g1[0] > 1.0;
   bool p_monotone = true, m_monotone = true;
-  for (std::size_t i = 1; i < n; ++i) {
+  for (std::size_t i = 1; i < n && full; ++i) {
     if (checks && r[i] - r[i - 1] != 0.0) {
       if (c_s[i - 1] + c_s[i] == 0.0)
         sound_infinite = true;
@@ -432,6 +436,8 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
     p_monotone = p_monotone & (P[i] <= P[i - 1]);
     m_monotone = m_monotone & (m[i] >= m[i - 1]);
   }
+  if (!full && model_energy)
+    for (std::size_t i = 1; i < n; ++i) g1_above_1 = g1_above_1 & (g1[i] > 1.0);
 
   double mass_int = 0, p_int = 0, g1p_int = 0, excess_int = 0, inertia_int = 0;
   {
@@ -440,16 +446,28 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
     double* const f_g1p = f_p + n;
     double* const f_excess = f_g1p + n;
     double* const f_inertia = f_excess + n;
-    for (std::size_t k = 0; k < n; ++k) {
+    if (!full) {
+      for (std::size_t k = 0; k < n; ++k) {
+        f_p[k] = P[k] * r[k] * r[k];
+        f_g1p[k] = g1[k] * P[k] * r[k] * r[k];
+      }
+      for (std::size_t i = 1; i < n; ++i) {
+        const double dr = r[i] - r[i - 1];
+        auto trap = [&](const double* f) { return 0.5 * dr * (f[i - 1] + f[i]); };
+        p_int += trap(f_p);
+        g1p_int += trap(f_g1p);
+      }
+    }
+    for (std::size_t k = 0; k < n && full; ++k) {
       f_mass[k] = 4.0 * pi * r[k] * r[k] * rho[k];
       f_p[k] = P[k] * r[k] * r[k];
     }
-    for (std::size_t k = 0; k < n; ++k) {
+    for (std::size_t k = 0; k < n && full; ++k) {
       f_g1p[k] = g1[k] * P[k] * r[k] * r[k];
       f_excess[k] = (g1[k] - four_thirds) * P[k] * r[k] * r[k];
     }
-    for (std::size_t k = 0; k < n; ++k) f_inertia[k] = rho[k] * r[k] * r[k] * r[k] * r[k];
-    for (std::size_t i = 1; i < n; ++i) {
+    for (std::size_t k = 0; k < n && full; ++k) f_inertia[k] = rho[k] * r[k] * r[k] * r[k] * r[k];
+    for (std::size_t i = 1; i < n && full; ++i) {
       const double dr = r[i] - r[i - 1];
       auto trap = [&](const double* f) { return 0.5 * dr * (f[i - 1] + f[i]); };
       mass_int += trap(f_mass);
@@ -466,20 +484,29 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
     const double gr = gm_r[i];
     return (r[i] > 0.0 ? g_r[i] * (U - Omega) : 0.0) + 0.5 * gr * gr + gr * (u + p_rho[i]);
   };
-  double f_rad = pn_integrand(0, 3.0 * p_rho[0], 0.0);
-  double f_model = pn_integrand(0, u_model[0], 0.0);
-  for (std::size_t i = 1; i < n; ++i) {
-    const double dm = m[i] - m[i - 1];
-    const double u_rad = 3.0 * p_rho[i];
-    U_rad += 0.5 * (u_rad + 3.0 * p_rho[i - 1]) * dm;
-    U_model += 0.5 * (u_model[i] + u_model[i - 1]) * dm;
-    Omega += 0.5 * (gm_r[i] + gm_r[i - 1]) * dm;
-    const double fa = pn_integrand(i, u_rad, U_rad), fb = pn_integrand(i, u_model[i], U_model);
-    b_rad += 0.5 * (fa + f_rad) * dm;
-    b_model += 0.5 * (fb + f_model) * dm;
-    f_rad = fa;
-    f_model = fb;
-  }
+  // (with_model: also b_model; the other sums' arithmetic is the same either way)
+  auto pn_pass = [&](auto with_model) {
+    constexpr bool both = decltype(with_model)::value;
+    double f_rad = pn_integrand(0, 3.0 * p_rho[0], 0.0);
+    double f_model = both ? pn_integrand(0, u_model[0], 0.0) : 0.0;
+    for (std::size_t i = 1; i < n; ++i) {
+      const double dm = m[i] - m[i - 1];
+      const double u_rad = 3.0 * p_rho[i];
+      U_rad += 0.5 * (u_rad + 3.0 * p_rho[i - 1]) * dm;
+      if (both) U_model += 0.5 * (u_model[i] + u_model[i - 1]) * dm;
+      Omega += 0.5 * (gm_r[i] + gm_r[i - 1]) * dm;
+      const double fa = pn_integrand(i, u_rad, U_rad);
+      b_rad += 0.5 * (fa + f_rad) * dm;
+      f_rad = fa;
+      if (both) {
+        const double fb = pn_integrand(i, u_model[i], U_model);
+        b_model += 0.5 * (fb + f_model) * dm;
+        f_model = fb;
+      }
+    }
+  };
+  if (model_energy) pn_pass(std::true_type{});
+  else pn_pass(std::false_type{});
   d.t_sound_s = !checks         ? std::numeric_limits<double>::quiet_NaN()
                 : sound_infinite ? std::numeric_limits<double>::infinity()
                                  : t_sound;
@@ -487,18 +514,24 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
     throw Error(ErrorKind::numerical,
                 model.source + ": the pressure integral is zero; Gamma1 averages are undefined");
 
-  d.mass_integral_g = mass_int;
-  const double dm_table = M - m[0];
-  d.mass_consistency = dm_table > 0.0 ? std::abs(dm_table - mass_int) / dm_table
-                                      : std::numeric_limits<double>::infinity();
-
+  constexpr double not_computed = std::numeric_limits<double>::quiet_NaN();
   d.gamma1_pressure_weighted = g1p_int / p_int;
-  d.gamma1_min = g1[g1_min_index];
-  d.gamma1_min_r_cm = r[g1_min_index];
-  find_gamma1_zones(model, d);
-  const double inertia = inertia_int + std::pow(R, 6) * d.surface_pressure / (G * M);
-  d.omega2_homologous = 9.0 * excess_int / inertia;
-  d.sigma2_homologous = d.omega2_homologous * R * R * R / (G * M);
+  if (full) {
+    d.mass_integral_g = mass_int;
+    const double dm_table = M - m[0];
+    d.mass_consistency = dm_table > 0.0 ? std::abs(dm_table - mass_int) / dm_table
+                                        : std::numeric_limits<double>::infinity();
+    d.gamma1_min = g1[g1_min_index];
+    d.gamma1_min_r_cm = r[g1_min_index];
+    find_gamma1_zones(model, d);
+    const double inertia = inertia_int + std::pow(R, 6) * d.surface_pressure / (G * M);
+    d.omega2_homologous = 9.0 * excess_int / inertia;
+    d.sigma2_homologous = d.omega2_homologous * R * R * R / (G * M);
+  } else {
+    d.mass_integral_g = d.mass_consistency = not_computed;
+    d.gamma1_min = d.gamma1_min_r_cm = not_computed;
+    d.omega2_homologous = d.sigma2_homologous = not_computed;
+  }
 
   if (checks)
     hse_residual(model, options.hse_pressure_floor * p_max, p_monotone, m_monotone, cell,
@@ -512,7 +545,7 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
   const double scale = G * G * M * M * M / (R * R);
   d.pn_coefficient_radiation_limit = b_rad / scale / (3.0 * d.binding_a);
   d.pn_coefficient_model_energy = std::numeric_limits<double>::quiet_NaN();
-  if (model_u_defined)
+  if (model_u_defined && model_energy)
     d.pn_coefficient_model_energy = b_model / scale / (3.0 * d.binding_a);
   else if (options.pn_energy == PnEnergy::model)
     throw Error(ErrorKind::numerical,
@@ -523,6 +556,7 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
                                                          : d.pn_coefficient_radiation_limit;
   d.gamma1_critical_pn = four_thirds + d.pn_coefficient * d.compactness;
   d.pn_unstable = d.gamma1_pressure_weighted < d.gamma1_critical_pn;
+  if (!full) return d; // (no warnings)
 
   // Warnings.
   if (!d.has_centre)

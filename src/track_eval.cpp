@@ -37,7 +37,7 @@ TrackRow evaluate_model(const StellarModel& model, const TrackOptions& options) 
   row.file = model.source;
 
   DiagnosticsOptions diag_options;
-  diag_options.checks = false; // a row reads none of the checks
+  diag_options.stability_only = true; // a row reads only the masses, t_dyn and the verdicts
   const ModelDiagnostics d = diagnose(model, diag_options);
   row.mass_g = d.mass_g;
   row.radius_cm = d.radius_cm;

@@ -233,6 +233,48 @@ TEST_CASE("without the checks: the same masses, time scales, integrals and crite
   CHECK(a.pn_unstable == b.pn_unstable);
 }
 
+TEST_CASE("stability only: the verdicts' quantities bit for bit, nothing else") {
+  // (What a `radmode track` row reads.) A model with Gamma1 < 4/3 in the middle, which the
+  // full run reports as a zone, and a mass error, which it warns about.
+  StellarModel model = polytrope_model(3.0, 301, c::M_sun, c::R_sun, 5.0 / 3.0);
+  for (std::size_t i = 100; i < 150; ++i) model.gamma1[i] = 1.30;
+  for (auto& rho : model.rho) rho *= 1.01;
+  for (const PnEnergy energy : {PnEnergy::radiation_limit, PnEnergy::model}) {
+    DiagnosticsOptions full_options, lean_options;
+    full_options.pn_energy = lean_options.pn_energy = energy;
+    lean_options.stability_only = true;
+    const ModelDiagnostics a = diagnose(model, full_options), b = diagnose(model, lean_options);
+    REQUIRE(!a.warnings.empty());
+    REQUIRE(!a.gamma1_below_4_3_zones.empty());
+    CHECK(a.points == b.points);
+    CHECK(a.mass_g == b.mass_g);
+    CHECK(a.radius_cm == b.radius_cm);
+    CHECK(a.mean_density_g_cm3 == b.mean_density_g_cm3);
+    CHECK(a.rho_c_g_cm3 == b.rho_c_g_cm3);
+    CHECK(a.t_dyn_s == b.t_dyn_s);
+    CHECK(a.t_kepler_s == b.t_kepler_s);
+    CHECK(a.t_freefall_s == b.t_freefall_s);
+    CHECK(a.gamma1_pressure_weighted == b.gamma1_pressure_weighted);
+    CHECK(a.compactness == b.compactness);
+    CHECK(a.binding_a == b.binding_a);
+    CHECK(a.pn_coefficient_radiation_limit == b.pn_coefficient_radiation_limit);
+    CHECK(a.pn_coefficient == b.pn_coefficient);
+    CHECK(a.gamma1_critical_pn == b.gamma1_critical_pn);
+    CHECK(a.pn_unstable == b.pn_unstable);
+    if (energy == PnEnergy::model)
+      CHECK(a.pn_coefficient_model_energy == b.pn_coefficient_model_energy);
+    else
+      CHECK(std::isnan(b.pn_coefficient_model_energy));
+    CHECK(std::isnan(b.t_sound_s));
+    CHECK(std::isnan(b.mass_consistency));
+    CHECK(std::isnan(b.gamma1_min));
+    CHECK(std::isnan(b.omega2_homologous));
+    CHECK(b.gamma1_below_4_3_zones.empty());
+    CHECK(b.hse_points_checked == 0);
+    CHECK(b.warnings.empty());
+  }
+}
+
 TEST_CASE("mass inconsistency is reported") {
   StellarModel model = uniform_sphere_model(201, c::M_sun, c::R_sun, 5.0 / 3.0);
   CHECK(diagnose(model).mass_consistency < 1e-4);

@@ -82,6 +82,14 @@ struct DiagnosticsOptions {
   /// hse_unchecked, hse_residual or sound_time_infinite warning) for callers that read only
   /// the masses, time scales, integrals and the stability criteria -- `radmode track`.
   bool checks = true;
+  /// Only what the two stability verdicts need: points, mass, radius, mean and central
+  /// density, has_centre, surface pressure, the time scales (t_sound_s NaN), the
+  /// pressure-weighted <Gamma1>, compactness, binding_a and the post-Newtonian coefficient,
+  /// critical Gamma1 and verdict (the model-energy coefficient only with pn_energy = model) --
+  /// each bit for bit as in the full run. The other doubles are NaN, the Gamma1 zones empty,
+  /// the HSE fields 0, and there are no warnings. Implies checks = false. For `radmode
+  /// track`, whose rows read nothing else.
+  bool stability_only = false;
 
   /// Throws UsageError naming the option, its value and the allowed range.
   void validate() const;

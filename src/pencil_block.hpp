@@ -52,6 +52,14 @@ std::vector<RqiStats> rayleigh_iterate(const TridiagonalPencil& p,
                                      const std::vector<double>& first_shifts = {},
                                      const Prolongation* from = nullptr);
 
+/// rayleigh_iterate runs its blocks of three or more vectors on four lanes (AVX2) where this
+/// build (x86-64, GCC) and the processor allow, else on two (SSE2, NEON). Both kernels do the
+/// same operations per lane, so their results are equal bit for bit (test_pencil_block).
+/// wide_kernel_available(): the four-lane kernel can run here; use_wide_kernel(false) makes
+/// every later call use the two-lane one (for that test; process-wide), true restores it.
+bool wide_kernel_available();
+void use_wide_kernel(bool on);
+
 /// Linear interpolation of vectors of a coarser pencil onto a finer one, both selecting nodes
 /// of the same base mesh with coordinates x (pencil.node: base node of each row). A base end
 /// node without a row (a removed Dirichlet end) counts as 0. Fine row j at base coordinate

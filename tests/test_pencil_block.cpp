@@ -10,6 +10,8 @@
 
 #include <algorithm>
 #include <cmath>
+#include <cstring>
+#include <string>
 
 using namespace radmode;
 
@@ -157,6 +159,62 @@ TEST_CASE("Rayleigh quotient iteration reaches the closed-form eigenpairs from r
       xmx += x[j] * mx;
     }
     CHECK(xmx == doctest::Approx(1.0).epsilon(1e-12));
+  }
+}
+
+TEST_CASE("the four-lane and the two-lane Rayleigh kernels agree bit for bit") {
+  // rayleigh_iterate takes a four-lane (AVX2) kernel for blocks of 3 to 8 vectors where it can
+  // (pencil_block.hpp). Both must give the same vectors and statistics to the last bit, whatever
+  // the block width, with and without residuals, first shifts and a prolongation from a
+  // coarser mesh, on the pencil of a stellar model (n = 3 polytrope, 801 points).
+  GeneratorOptions g;
+  g.points = 801;
+  const Structure s(make_polytrope(3.0, g));
+  const ModelPencil fine = assemble_stellar_form(s, SurfaceCondition::regular, false);
+  const std::optional<detail::MeshLevel> coarse = detail::coarsen(
+      all_nodes(fine.x.size() - 1), false, fine.pencil, fine.x, s.discontinuity_nodes());
+  REQUIRE(coarse);
+  MESSAGE("four-lane kernel available here: " << std::string(detail::wide_kernel_available() ? "yes" : "no"));
+  auto bits_equal = [](double a, double b) { return std::memcmp(&a, &b, sizeof a) == 0; };
+  for (const bool prolong : {false, true}) {
+    const TridiagonalPencil& start_on = prolong ? coarse->pencil : fine.pencil;
+    for (std::size_t count = 1; count <= 8; ++count) {
+      std::vector<std::vector<double>> starts;
+      std::vector<double> shifts;
+      for (std::size_t k = 0; k < count; ++k) {
+        std::vector<double> x(start_on.size());
+        for (std::size_t j = 0; j < x.size(); ++j) {
+          const double xj = fine.x[start_on.node[j]];
+          x[j] = std::sin((static_cast<double>(k) + 1) * 3.0 * xj) + 0.1 * xj * xj;
+        }
+        starts.push_back(x);
+        shifts.push_back(k % 2 ? std::nan("") : 0.5 + 4.0 * static_cast<double>(k * k));
+      }
+      for (const double tol : {0.0, 1e-10}) {
+        CAPTURE(prolong);
+        CAPTURE(count);
+        CAPTURE(tol);
+        std::vector<std::vector<double>> two = starts, four = starts;
+        const detail::Prolongation up{fine.x, coarse->pencil};
+        const detail::Prolongation* from = prolong ? &up : nullptr;
+        detail::use_wide_kernel(false);
+        const auto st2 = detail::rayleigh_iterate(fine.pencil, two, 2, 4, 1e3, tol, shifts, from);
+        detail::use_wide_kernel(true);
+        const auto st4 = detail::rayleigh_iterate(fine.pencil, four, 2, 4, 1e3, tol, shifts, from);
+        REQUIRE(st2.size() == count);
+        for (std::size_t k = 0; k < count; ++k) {
+          CHECK(st2[k].steps == st4[k].steps);
+          for (const auto field : {&detail::RqiStats::rho, &detail::RqiStats::xmx,
+                                   &detail::RqiStats::r_norm, &detail::RqiStats::kx_norm,
+                                   &detail::RqiStats::mx_norm, &detail::RqiStats::a_norm})
+            CHECK(bits_equal(st2[k].*field, st4[k].*field));
+          REQUIRE(two[k].size() == four[k].size());
+          std::size_t differ = 0;
+          for (std::size_t j = 0; j < two[k].size(); ++j) differ += !bits_equal(two[k][j], four[k][j]);
+          CHECK(differ == 0);
+        }
+      }
+    }
   }
 }
 

@@ -64,7 +64,7 @@ constexpr std::size_t end_mark = static_cast<std::size_t>(-2);  ///< ends a sour
 /// them for every call cost as much as the arithmetic.
 struct Workspace {
   std::vector<double> x, y, dinv;
-  std::vector<double> rows; ///< per row of the last step's vector: K y, M y, |K||y|, |M||y|
+  std::vector<double> rows; ///< per row of the last step's vector: K y, M y
   void reserve(std::size_t size) {
     for (auto* v : {&x, &y, &dinv})
       if (v->size() < size) v->resize(size);

@@ -481,19 +481,47 @@ ModelPencil assemble_stellar_form(const Structure& s, SurfaceCondition surface, 
 }
 
 int inertia_below(const TridiagonalPencil& p, double s) {
+  // The twisted factorization K - s M = N D N^T at row t = n / 2 (N unit lower bidiagonal
+  // above row t, upper below it): the pivots of rows 0 .. t-1 from the first row down, those
+  // of rows n-1 .. t+1 from the last row up, and row t's from both sides. D is diagonal, so by
+  // Sylvester's law its negative entries count the eigenvalues below s. The two recurrences
+  // are independent: inertia_below_many runs them side by side, which halves the chain of
+  // dependent divisions that bounds its speed. Each pivot (and row t's) is formed in the order
+  // written here, so inertia_below_many's counts are these, shift by shift.
   const std::size_t n = p.size();
+  if (n == 0) return 0;
+  const std::size_t t = n / 2;
+  auto pivot = [](double v) { return v == 0.0 ? -1e-300 : v; };
   int negative = 0;
-  double d = 1.0;
-  double e_prev = 0.0;
-  for (std::size_t j = 0; j < n; ++j) {
+  double d = 0.0, u = 0.0; // the last pivot of each side
+  for (std::size_t j = 0; j < t; ++j) {
     double piv = p.k_diag[j] - s * p.m_diag[j];
-    if (j > 0) piv -= e_prev * e_prev / d;
-    if (piv == 0.0) piv = -1e-300;
-    if (piv < 0.0) ++negative;
-    d = piv;
-    if (j + 1 < n) e_prev = p.k_off[j] - s * p.m_off[j];
+    if (j > 0) {
+      const double e = p.k_off[j - 1] - s * p.m_off[j - 1];
+      piv -= e * e / d;
+    }
+    d = pivot(piv);
+    negative += d < 0.0;
   }
-  return negative;
+  for (std::size_t j = n - 1; j > t; --j) {
+    double piv = p.k_diag[j] - s * p.m_diag[j];
+    if (j + 1 < n) {
+      const double e = p.k_off[j] - s * p.m_off[j];
+      piv -= e * e / u;
+    }
+    u = pivot(piv);
+    negative += u < 0.0;
+  }
+  double twist = p.k_diag[t] - s * p.m_diag[t];
+  if (t > 0) {
+    const double e = p.k_off[t - 1] - s * p.m_off[t - 1];
+    twist -= e * e / d;
+  }
+  if (t + 1 < n) {
+    const double e = p.k_off[t] - s * p.m_off[t];
+    twist -= e * e / u;
+  }
+  return negative + (pivot(twist) < 0.0);
 }
 
 } // namespace radmode

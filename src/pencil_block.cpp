@@ -72,41 +72,6 @@ struct Workspace {
 };
 thread_local Workspace t_work;
 
-/// Inertia counts for B shifts: the arithmetic of inertia_below (discretize.cpp), per shift,
-/// two shifts to an instruction (Pair; an odd B gets a dummy shift whose count is dropped).
-/// The operations per shift are the same, in the same order, so are the counts. A zero pivot
-/// becomes -1e-300 behind a branch (rare, so predicted: the select stays off the chain of
-/// dependent divisions, which bounds the speed for up to four shifts).
-template <std::size_t B> void count_block(const TridiagonalPencil& p, const double* s, int* out) {
-  constexpr std::size_t H = (B + 1) / 2;
-  const std::size_t n = p.size();
-  const double* const kd = p.k_diag.data();
-  const double* const md = p.m_diag.data();
-  const double* const ko = p.k_off.data();
-  const double* const mo = p.m_off.data();
-  const Pair tiny = {-1e-300, -1e-300};
-  Pair shift[H], d[H];
-  PairMask negative[H];
-  for (std::size_t h = 0; h < H; ++h) {
-    shift[h] = Pair{s[2 * h], 2 * h + 1 < B ? s[2 * h + 1] : 0.0};
-    Pair piv = kd[0] - shift[h] * md[0];
-    piv = piv == 0.0 ? tiny : piv;
-    negative[h] = -(piv < 0.0); // a true comparison is -1 per lane
-    d[h] = piv;
-  }
-  for (std::size_t j = 1; j < n; ++j) {
-    const double koj = ko[j - 1], moj = mo[j - 1], kdj = kd[j], mdj = md[j];
-    for (std::size_t h = 0; h < H; ++h) {
-      const Pair e_prev = koj - shift[h] * moj;
-      Pair piv = (kdj - shift[h] * mdj) - e_prev * e_prev / d[h];
-      const PairMask zero = piv == 0.0;
-      if (__builtin_expect((zero[0] | zero[1]) != 0, 0)) piv = zero ? tiny : piv; // off the chain
-      negative[h] -= piv < 0.0;
-      d[h] = piv;
-    }
-  }
-  for (std::size_t b = 0; b < B; ++b) out[b] = static_cast<int>(negative[b / 2][b % 2]);
-}
 // --- The Rayleigh quotient iteration kernel, once per vector width ----------------------
 
 namespace portable {
@@ -166,6 +131,11 @@ __attribute__((noinline)) void iterate(const TridiagonalPencil& p, std::vector<d
   iterate_block<B>(p, xs, first_shift, min_steps, max_steps, scale, residual_tol, kmax, mmax,
                    from, stats);
 }
+/// count_block<B> of this kernel behind a call with no vector arguments.
+template <std::size_t B>
+__attribute__((noinline)) void count(const TridiagonalPencil& p, const double* shifts, int* out) {
+  count_block<B>(p, shifts, out);
+}
 } // namespace wide
 #pragma GCC pop_options
 #endif
@@ -204,7 +174,16 @@ void use_wide_kernel(bool on) { wide_kernel_on.store(on, std::memory_order_relax
 std::vector<int> inertia_below_many(const TridiagonalPencil& p, const std::vector<double>& shifts) {
   std::vector<int> counts(shifts.size(), 0);
   for_chunks(shifts.size(), [&](std::size_t first, std::size_t width) {
-    with_width(width, [&](auto w) { count_block<decltype(w)::value>(p, &shifts[first], &counts[first]); });
+    with_width(width, [&](auto w) {
+      constexpr std::size_t B = decltype(w)::value;
+#if RADMODE_WIDE_KERNEL
+      if (B >= 3 && wide_kernel_on.load(std::memory_order_relaxed) && wide_kernel_usable()) {
+        wide::count<B>(p, &shifts[first], &counts[first]);
+        return;
+      }
+#endif
+      portable::count_block<B>(p, &shifts[first], &counts[first]);
+    });
   });
   return counts;
 }

@@ -101,25 +101,33 @@ TEST_CASE("inertia counts in pairs: identical to the one-shift counts near eigen
     shifts.push_back(lk * (1 - 1e-12));
     shifts.push_back(lk * (1 + 1e-12));
   }
+  // (Both kernels: from three shifts on, the four-lane one where available.)
   auto check_all = [](const TridiagonalPencil& p, const std::vector<double>& sh) {
-    for (std::size_t width = 1; width <= 8; ++width)
-      for (std::size_t first = 0; first < sh.size(); first += width) {
-        const std::size_t end = std::min(sh.size(), first + width);
-        const std::vector<double> part(sh.begin() + static_cast<std::ptrdiff_t>(first),
-                                       sh.begin() + static_cast<std::ptrdiff_t>(end));
-        const std::vector<int> many = detail::inertia_below_many(p, part);
-        REQUIRE(many.size() == part.size());
-        for (std::size_t b = 0; b < part.size(); ++b) {
-          CAPTURE(part[b]);
-          CHECK(many[b] == inertia_below(p, part[b]));
+    for (const bool wide : {false, true}) {
+      for (std::size_t width = 1; width <= 8; ++width) {
+        for (std::size_t first = 0; first < sh.size(); first += width) {
+          const std::size_t end = std::min(sh.size(), first + width);
+          const std::vector<double> part(sh.begin() + static_cast<std::ptrdiff_t>(first),
+                                         sh.begin() + static_cast<std::ptrdiff_t>(end));
+          detail::use_wide_kernel(wide);
+          const std::vector<int> many = detail::inertia_below_many(p, part);
+          detail::use_wide_kernel(true);
+          REQUIRE(many.size() == part.size());
+          for (std::size_t b = 0; b < part.size(); ++b) {
+            CAPTURE(wide);
+            CAPTURE(part[b]);
+            CHECK(many[b] == inertia_below(p, part[b]));
+          }
         }
       }
+    }
   };
   check_all(d.pencil, shifts);
-  // M = I, K tridiagonal with off-diagonals -1: at s = 0 the pivots of K = diag(1, 1, 2, 3) are
-  // 1, 0 (row 1), ...; of diag(0, 2, 2) 0 at row 0; of diag(2, 2, 0.5) -> 2, 1.5, 0.5 - 1/1.5
-  // (not exact), so s is chosen to make the last pivot exactly zero instead: diag(1, 2, 1) has
-  // pivots 1, 1, 0.
+  // M = I, K tridiagonal with off-diagonals -1. The counts use a twisted factorization
+  // (inertia_below): pivots from the top down to row n/2 - 1, from the bottom up to row n/2 + 1,
+  // and the twist pivot of row n/2 from both sides. At s = 0: K = diag(1, 1, 2, 3) has top
+  // pivots 1, 0 (a zero at row 1); diag(0, 2, 2) a zero top pivot at row 0; diag(1, 2, 1) top
+  // 1, bottom 1 and twist 2 - 1 - 1 = 0 (a zero twist pivot).
   for (const std::vector<double>& diag : {std::vector<double>{1, 1, 2, 3}, std::vector<double>{0, 2, 2},
                                           std::vector<double>{1, 2, 1}}) {
     TridiagonalPencil p;

@@ -196,9 +196,10 @@ struct ModelPencil {
 ModelPencil assemble_stellar_form(const Structure& structure, SurfaceCondition surface,
                                   bool fix_first);
 
-/// Number of negative pivots of LDL^T(K - s M) = number of eigenvalues below s (Sylvester's
-/// law of inertia). O(N), no allocation. A zero pivot is replaced by a tiny negative one, so
-/// an eigenvalue exactly at s counts as below.
+/// Number of eigenvalues below s: the negative pivots of a twisted factorization of K - s M
+/// (rows from both ends towards the middle; Sylvester's law of inertia). O(N), no
+/// allocation. A zero pivot is replaced by a tiny negative one, so an eigenvalue exactly at s
+/// counts as below.
 int inertia_below(const TridiagonalPencil& pencil, double s);
 
 } // namespace radmode

@@ -22,9 +22,10 @@ void prepend(std::vector<double>& v, double x) {
 /// is monotone when both derivatives share the secant's sign and a^2 + b^2 <= 9, with
 /// a = g0 / (f1 - f0), b = g1 / (f1 - f0) (tested here without dividing).
 bool monotone_cubic(double f0, double f1, double g0, double g1) {
+  // (bitwise &: all three tests evaluated, no branches between them)
   const double delta = f1 - f0;
   if (delta == 0.0) return g0 == 0.0 && g1 == 0.0;
-  return g0 * delta >= 0 && g1 * delta >= 0 && g0 * g0 + g1 * g1 <= 9.0 * (delta * delta);
+  return (g0 * delta >= 0) & (g1 * delta >= 0) & (g0 * g0 + g1 * g1 <= 9.0 * (delta * delta));
 }
 
 /// d f/dr at row j from its neighbours inside rows [lo, hi] (three-point, second order,

@@ -4,6 +4,7 @@ of the same linear finite-element discretization, on the same model files.
 
     /usr/bin/python3 tests/bench/track_scipy.py --radmode build/radmode [--models 1000]
         [--points 2000] [--count 5] [--baseline same|simple|both] [--repeat 1] [--passes 10]
+        [--chunks 10]
 
 Models: n = 3 polytropes written by `radmode make polytrope` (Gamma1 from 1.70 down to 1.40,
 radius 1 to 10 Rsun: the same family as tests/bench/bench_track.cpp).
@@ -456,6 +457,12 @@ def main():
                          "faster, one pass would be timed over a window 20x shorter than "
                          "SciPy's, where a burst of other load on a shared machine weighs 20x "
                          "more; with passes the two windows are of similar length")
+    ap.add_argument("--chunks", type=int, default=10,
+                    help="each round alternates between radmode and SciPy this many times, "
+                         "each time on the next 1/chunks of the models (default 10), and sums "
+                         "each side's times: both sample the machine's speed over the whole "
+                         "round, instead of one after the other (on a shared machine it drifts "
+                         "by tens of percent within minutes)")
     ap.add_argument("--repeat", type=int, default=1,
                     help="rounds of radmode then each baseline (default 1); each round's ratio "
                          "compares runs made one after the other, and with several rounds the "
@@ -466,6 +473,8 @@ def main():
         ap.error("--repeat: expected at least 1")
     if a.passes < 1:
         ap.error("--passes: expected at least 1")
+    if not 1 <= a.chunks <= a.models:
+        ap.error("--chunks: expected 1 to --models")
     names = ["same", "simple"] if a.baseline == "both" else [a.baseline]
 
     rounds = []  # per round: radmode (wall, cpu) and {baseline: (wall, cpu)}
@@ -479,27 +488,43 @@ def main():
                             str(a.points), "--gamma1", repr(1.70 - 0.30 * f),
                             "--radius", repr(1.0 + 9.0 * f), "--output", p], check=True)
             paths.append(p)
-        lst = os.path.join(d, "list.txt")
-        with open(lst, "w") as f:
-            f.write("\n".join(paths * a.passes) + "\n")
+        # The chunks: consecutive slices of the models, radmode's list of each repeated `passes`
+        # times.
+        bounds = [a.models * c // a.chunks for c in range(a.chunks + 1)]
+        chunks = [paths[bounds[c]:bounds[c + 1]] for c in range(a.chunks)]
+        lists = []
+        for c, part in enumerate(chunks):
+            lists.append(os.path.join(d, "list%d.txt" % c))
+            with open(lists[-1], "w") as f:
+                f.write("\n".join(part * a.passes) + "\n")
         out = os.path.join(d, "track.csv")
 
         for k in range(a.repeat):
-            radmode_times = run_radmode(a, lst, out)
+            radmode_times = (0.0, 0.0)
+            baseline_times = {name: (0.0, 0.0) for name in names}
+            rows = []
+            periods = {name: [] for name in names}
+            for c, part in enumerate(chunks):
+                wall, cpu = run_radmode(a, lists[c], out)
+                radmode_times = (radmode_times[0] + wall, radmode_times[1] + cpu)
+                if k == 0:
+                    with open(out, newline="") as f:
+                        table = list(csv.reader(l for l in f if not l.startswith("#")))
+                    head = table[0]
+                    rows += table[1:len(part) + 1] # (the first pass)
+                for name in names:
+                    solve = BASELINES[name]
+                    t0, p0 = time.perf_counter(), time.process_time()
+                    periods[name] += [solve(p, a.count) for p in part]
+                    w0, c0 = baseline_times[name]
+                    baseline_times[name] = (w0 + time.perf_counter() - t0,
+                                            c0 + time.process_time() - p0)
             if k == 0:
-                with open(out, newline="") as f:
-                    rows = list(csv.reader(l for l in f if not l.startswith("#")))
-                head, rows = rows[0], rows[1:a.models + 1] # (the first pass)
                 cols = [head.index("period_d_%d" % k) for k in range(a.count)]
-            baseline_times = {}
             for name in names:
-                solve = BASELINES[name]
-                t0, p0 = time.perf_counter(), time.process_time()
-                periods = [solve(p, a.count) for p in paths]
-                baseline_times[name] = (time.perf_counter() - t0, time.process_time() - p0)
                 if k == 0:
                     worst, compared = 0.0, 0
-                    for row, ps in zip(rows, periods):
+                    for row, ps in zip(rows, periods[name]):
                         for c, p in zip(cols, ps):
                             if row[c]:
                                 worst = max(worst, abs(float(row[c]) / p - 1))
@@ -508,8 +533,9 @@ def main():
             rounds.append((radmode_times, baseline_times))
 
     n = a.models
-    print("models: %d polytropes n = 3, %d points, %d modes, one core; radmode runs the list %d "
-          "times per round, times below per pass" % (n, a.points, a.count, a.passes))
+    print("models: %d polytropes n = 3, %d points, %d modes, one core; each round alternates %d "
+          "times between radmode (each model %d times) and SciPy; times below per model list"
+          % (n, a.points, a.count, a.chunks, a.passes))
     # radmode's times per pass (per list of n models), as SciPy's are
     rounds = [((t / a.passes, c / a.passes), b) for (t, c), b in rounds]
     for k, ((t_radmode, c_radmode), baseline_times) in enumerate(rounds):

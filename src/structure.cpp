@@ -1,5 +1,7 @@
 #include "radmode/structure.hpp"
 
+#include "exp_function.hpp"
+
 #include "radmode/constants.hpp"
 #include "radmode/error.hpp"
 
@@ -155,11 +157,12 @@ inline bool Structure::build_interval(Interval& iv, StructureValues& v, const Co
 void Structure::midpoint_exponentials(const Interval* iv, StructureValues* mid_values,
                                       const unsigned char* known, std::size_t count) {
   const Basis mid = basis(0.5); // constant-folded
+  const detail::ExpFunction exp = detail::exp_function(); // std::exp's results
   double unused = 0;
   for (std::size_t i = 0; i < count; ++i)
     if (known[i]) {
-      mid_values[i].P = std::exp(mid_values[i].P);
-      if (log_argument(iv[i].rho, 0.5, mid, unused)) mid_values[i].rho = std::exp(mid_values[i].rho);
+      mid_values[i].P = exp(mid_values[i].P);
+      if (log_argument(iv[i].rho, 0.5, mid, unused)) mid_values[i].rho = exp(mid_values[i].rho);
     }
 }
 
@@ -313,6 +316,7 @@ void Structure::values_at_rule_fixed(std::size_t first, std::size_t last, const 
   // once per interval, the arguments of the exponentials collected; then those exponentials
   // in one loop of independent calls.
   constexpr std::size_t block = 64;
+  const detail::ExpFunction exp = detail::exp_function(); // std::exp's results
   std::array<double, 2 * Q * block> arg;
   std::array<double*, 2 * Q * block> dest;
   std::array<bool, Q> direct{};
@@ -359,7 +363,7 @@ void Structure::values_at_rule_fixed(std::size_t first, std::size_t last, const 
       curve(iv.P, &StructureValues::P);
       curve(iv.rho, &StructureValues::rho);
     }
-    for (std::size_t a = 0; a < ne; ++a) arg[a] = std::exp(arg[a]);
+    for (std::size_t a = 0; a < ne; ++a) arg[a] = exp(arg[a]);
     for (std::size_t a = 0; a < ne; ++a) *dest[a] = arg[a];
   }
 }
@@ -371,6 +375,7 @@ RADMODE_FLATTEN void Structure::log_values_at(const std::size_t* interval, const
   // One pass in blocks: the logs, and with `values` the values too (the table rows and the
   // kept midpoints as they are, the exponentials of the logs in one loop per block).
   const Basis mid = basis(0.5); // constant-folded
+  const detail::ExpFunction exp = detail::exp_function(); // std::exp's results
   constexpr std::size_t block = 128;
   std::array<double, 2 * block> arg;
   std::array<double*, 2 * block> dest;
@@ -408,7 +413,7 @@ RADMODE_FLATTEN void Structure::log_values_at(const std::size_t* interval, const
       if (logs[k] & log_P) arg[ne] = out[k].P, dest[ne++] = &values[k].P;
       if (logs[k] & log_rho) arg[ne] = out[k].rho, dest[ne++] = &values[k].rho;
     }
-    for (std::size_t e = 0; e < ne; ++e) arg[e] = std::exp(arg[e]);
+    for (std::size_t e = 0; e < ne; ++e) arg[e] = exp(arg[e]);
     for (std::size_t e = 0; e < ne; ++e) *dest[e] = arg[e];
   }
 }

@@ -63,10 +63,13 @@ src/pencil_block.cpp), written with NumPy array operations over all table interv
 radmode side: `radmode track --jobs 1 --quiet --list LIST` (whole program, one thread).
 The script prints models/s for radmode and each baseline that ran (wall clock and CPU time:
 on a shared machine the CPU time is the fairer measure), the ratios, and for each baseline
-the largest relative difference of the periods found by it and by radmode. With
-`--repeat R` it runs R rounds (radmode, then each baseline) and prints every round and the
-median and range of the rounds' CPU-time ratios: the speed of a shared machine drifts by
-several per cent between runs, and a round compares runs made one after the other.
+the largest relative difference of the periods found by it and by radmode. A round
+alternates `--chunks` times (default 10) between radmode and the baselines, each time on the
+next slice of the models, radmode running its slice `--passes` times (default 10) in one
+call; each side's times are summed over the round and reported per list of models. The speed
+of a shared machine drifts by tens of per cent within minutes; alternating makes both sides
+sample the same minutes. With `--repeat R` it runs R rounds and prints every round, the
+median and range of the rounds' CPU-time ratios, and the ratio of the fastest round of each.
 """
 import argparse
 import csv

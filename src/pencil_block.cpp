@@ -97,6 +97,9 @@ inline bool any_lane(VecMask m) { return (m[0] | m[1]) != 0; }
 #pragma GCC push_options
 #pragma GCC target("avx2")
 namespace wide {
+// (The four-lane twins of pair.hpp's load2, store2 and abs2, defined inside the region so
+// that they are compiled for AVX2: a template from pair.hpp instantiated for 32-byte vectors
+// would be compiled for the baseline, with the vector-ABI warning.)
 typedef double Vec __attribute__((vector_size(32)));
 typedef std::int64_t VecMask __attribute__((vector_size(32)));
 typedef std::uint64_t VecBits __attribute__((vector_size(32)));

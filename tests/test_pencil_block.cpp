@@ -4,6 +4,7 @@
 
 #include "analytic_models.hpp"
 #include "radmode/discretize.hpp"
+#include "radmode/eigensolve.hpp"
 #include "radmode/generators.hpp"
 
 #include <doctest/doctest.h>
@@ -222,6 +223,51 @@ TEST_CASE("the four-lane and the two-lane Rayleigh kernels agree bit for bit") {
           CHECK(differ == 0);
         }
       }
+    }
+  }
+}
+
+TEST_CASE("solve_modes gives the same bits with either Rayleigh kernel") {
+  // The whole solve (nested iteration, verification counts, Richardson, error estimates,
+  // eigenfunctions) with the four-lane kernels and with the two-lane ones, on an n = 3
+  // polytrope and a model near marginal stability (n = 1.5, Gamma1 = 1.34), 5 and 8 modes.
+  struct Case {
+    double n, gamma1;
+    int count;
+  };
+  for (const Case c : {Case{3.0, 5.0 / 3.0, 5}, Case{1.5, 1.34, 8}}) {
+    CAPTURE(c.n);
+    CAPTURE(c.count);
+    GeneratorOptions g;
+    g.points = 1201;
+    g.gamma1 = c.gamma1;
+    const StellarModel model = make_polytrope(c.n, g);
+    SolveOptions options;
+    options.count = c.count;
+    detail::use_wide_kernel(false);
+    const ModeSet two = solve_modes(model, options);
+    detail::use_wide_kernel(true);
+    const ModeSet four = solve_modes(model, options);
+    REQUIRE(two.modes.size() == static_cast<std::size_t>(c.count));
+    REQUIRE(four.modes.size() == two.modes.size());
+    auto same = [](double a, double b) { return std::memcmp(&a, &b, sizeof a) == 0; };
+    for (std::size_t k = 0; k < two.modes.size(); ++k) {
+      const ModeSolution &a = two.modes[k], &b = four.modes[k];
+      CHECK(a.order == b.order);
+      CHECK(a.nodes == b.nodes);
+      CHECK(a.trusted == b.trusted);
+      CHECK(a.flag == b.flag);
+      CHECK(same(a.omega2, b.omega2));
+      CHECK(same(a.omega2_fine, b.omega2_fine));
+      CHECK(same(a.omega2_coarse, b.omega2_coarse));
+      CHECK(same(a.error_estimate, b.error_estimate));
+      CHECK(same(a.residual, b.residual));
+      CHECK(same(a.residual_floor, b.residual_floor));
+      CHECK(same(a.interpolation_error, b.interpolation_error));
+      REQUIRE(a.xi.size() == b.xi.size());
+      std::size_t differ = 0;
+      for (std::size_t j = 0; j < a.xi.size(); ++j) differ += !same(a.xi[j], b.xi[j]);
+      CHECK(differ == 0);
     }
   }
 }

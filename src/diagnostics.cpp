@@ -446,35 +446,30 @@ ModelDiagnostics diagnose(const StellarModel& model, const DiagnosticsOptions& o
     double* const f_g1p = f_p + n;
     double* const f_excess = f_g1p + n;
     double* const f_inertia = f_excess + n;
-    if (!full) {
+    // (Each sum in a loop with few others; the pressure moments, which the stability verdicts
+    // need, apart from the rest, which stability_only skips. Every sum in table order.)
+    for (std::size_t k = 0; k < n; ++k) {
+      f_p[k] = P[k] * r[k] * r[k];
+      f_g1p[k] = g1[k] * P[k] * r[k] * r[k];
+    }
+    for (std::size_t i = 1; i < n; ++i) {
+      const double dr = r[i] - r[i - 1];
+      p_int += 0.5 * dr * (f_p[i - 1] + f_p[i]);
+      g1p_int += 0.5 * dr * (f_g1p[i - 1] + f_g1p[i]);
+    }
+    if (full) {
       for (std::size_t k = 0; k < n; ++k) {
-        f_p[k] = P[k] * r[k] * r[k];
-        f_g1p[k] = g1[k] * P[k] * r[k] * r[k];
+        f_mass[k] = 4.0 * pi * r[k] * r[k] * rho[k];
+        f_excess[k] = (g1[k] - four_thirds) * P[k] * r[k] * r[k];
+        f_inertia[k] = rho[k] * r[k] * r[k] * r[k] * r[k];
       }
       for (std::size_t i = 1; i < n; ++i) {
         const double dr = r[i] - r[i - 1];
         auto trap = [&](const double* f) { return 0.5 * dr * (f[i - 1] + f[i]); };
-        p_int += trap(f_p);
-        g1p_int += trap(f_g1p);
+        mass_int += trap(f_mass);
+        excess_int += trap(f_excess);
+        inertia_int += trap(f_inertia);
       }
-    }
-    for (std::size_t k = 0; k < n && full; ++k) {
-      f_mass[k] = 4.0 * pi * r[k] * r[k] * rho[k];
-      f_p[k] = P[k] * r[k] * r[k];
-    }
-    for (std::size_t k = 0; k < n && full; ++k) {
-      f_g1p[k] = g1[k] * P[k] * r[k] * r[k];
-      f_excess[k] = (g1[k] - four_thirds) * P[k] * r[k] * r[k];
-    }
-    for (std::size_t k = 0; k < n && full; ++k) f_inertia[k] = rho[k] * r[k] * r[k] * r[k] * r[k];
-    for (std::size_t i = 1; i < n && full; ++i) {
-      const double dr = r[i] - r[i - 1];
-      auto trap = [&](const double* f) { return 0.5 * dr * (f[i - 1] + f[i]); };
-      mass_int += trap(f_mass);
-      p_int += trap(f_p);
-      g1p_int += trap(f_g1p);
-      excess_int += trap(f_excess);
-      inertia_int += trap(f_inertia);
     }
   }
 

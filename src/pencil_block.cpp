@@ -13,10 +13,11 @@
 #include <type_traits>
 #include <utility>
 
-// The four-lane kernel: x86-64 with GCC (its `target` pragma compiles one region of this file
-// for AVX2; Clang builds use the portable kernel).
+// The four-lane kernels: x86-64 with GCC (its `target` pragma compiles one region of this file
+// for AVX2; Clang builds use the portable kernels).
 #if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__)
 #define RADMODE_WIDE_KERNEL 1
+#include <immintrin.h>
 #else
 #define RADMODE_WIDE_KERNEL 0
 #endif
@@ -72,7 +73,7 @@ struct Workspace {
 };
 thread_local Workspace t_work;
 
-// --- The Rayleigh quotient iteration kernel, once per vector width ----------------------
+// --- The block kernels (inertia counts, Rayleigh quotient iteration), once per width ----
 
 namespace portable {
 using Vec = Pair;
@@ -85,10 +86,6 @@ inline Vec vsplat(double v) { return Vec{v, v}; }
 inline bool any_lane(VecMask m) { return (m[0] | m[1]) != 0; }
 #include "rqi_kernel.inc"
 } // namespace portable
-
-#if RADMODE_WIDE_KERNEL
-#include <immintrin.h>
-#endif
 
 #if RADMODE_WIDE_KERNEL
 // Four lanes with AVX2 (x86-64, GCC): two vector instructions instead of three per operation
